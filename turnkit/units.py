@@ -1,0 +1,165 @@
+"""The one pint unit registry and the helpers that convert at the boundary.
+
+The numeric core works in plain floats whose names carry the unit
+(``lead_mm``, ``sleep_current_uA``, ``poll_period_s``). Quantities with units
+("2 mm", "15 uA", "5 years") are parsed here, once, at the edge: design files,
+the command line and ``from_quantities`` constructors. pint is imported
+lazily so that ``import turnkit`` stays light.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from functools import lru_cache
+from typing import Any
+
+from .errors import DesignValueError
+
+__all__ = [
+    "registry",
+    "parse_quantity",
+    "to_magnitude",
+    "angle_power",
+    "same_kind",
+    "format_number",
+    "format_quantity",
+]
+
+# A number at the start of a quantity string, used to read offset units
+# ("25 degC") that pint refuses to multiply out of a string expression.
+_LEADING_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
+
+
+@lru_cache(maxsize=1)
+def registry():
+    """Return the shared pint ``UnitRegistry`` (created on first use)."""
+    import pint
+
+    ureg = pint.UnitRegistry()
+    # Battery and electronics people write "mAh", "uA", "years" and "rpm".
+    ureg.define("revolution_per_minute_alias = revolution / minute")
+    ureg.define("quarter_turn = 0.25 * revolution = qt")
+    return ureg
+
+
+def parse_quantity(text: Any, field: str):
+    """Parse ``text`` ("2 mm", "15 uA") into a pint Quantity.
+
+    Parameters
+    ----------
+    text : str or number or pint.Quantity
+        The value as written by the user. Bare numbers are dimensionless.
+    field : str
+        The field path, used in error messages.
+
+    Raises
+    ------
+    DesignValueError
+        When the text is not a quantity pint understands.
+    """
+    ureg = registry()
+    if isinstance(text, ureg.Quantity):
+        return text
+    if isinstance(text, bool):
+        raise DesignValueError(field, text, "a number or a quantity with a unit such as '2 mm'")
+    if isinstance(text, (int, float)):
+        return ureg.Quantity(text)
+    if not isinstance(text, str):
+        raise DesignValueError(field, text, "a number or a quantity with a unit such as '2 mm'")
+    cleaned = text.strip().replace("µ", "u").replace("μ", "u")
+    try:
+        q = ureg.Quantity(cleaned)
+    except Exception as exc:  # pint raises several unrelated types here
+        offset = _parse_offset_quantity(cleaned)
+        if offset is not None:
+            return offset
+        raise DesignValueError(
+            field, text, "a quantity with a unit such as '2 mm', '15 uA' or '5 years'",
+            hint=f"pint said: {exc}",
+        ) from None
+    return q
+
+
+def to_magnitude(text: Any, unit: str, field: str) -> float:
+    """Parse ``text`` and return its magnitude in ``unit`` as a float.
+
+    A bare number is taken to be in ``unit`` already. A quantity of the wrong
+    dimension raises :class:`DesignValueError` naming the expected unit.
+
+    Examples
+    --------
+    >>> to_magnitude("2 mm", "m", "lead")
+    0.002
+    >>> to_magnitude("1 mA", "uA", "sleep_current")
+    1000.0
+    """
+    ureg = registry()
+    q = parse_quantity(text, field)
+    if q.dimensionless and not ureg.Quantity(1, unit).dimensionless:
+        return float(q.magnitude)
+    try:
+        return float(q.to(unit).magnitude)
+    except Exception:
+        expected = ureg.Quantity(1, unit).dimensionality
+        raise DesignValueError(
+            field, str(text), f"a quantity convertible to {unit} (dimension {expected})",
+            hint=f"'{text}' has dimension {q.dimensionality}",
+        ) from None
+
+
+def _parse_offset_quantity(text: str):
+    """Read "number unit" with an offset unit (degC, degF) as one quantity.
+
+    pint parses "25 degC" as the product 25 * degC, which is ambiguous for
+    offset units; building the quantity from its two parts is not.
+    """
+    ureg = registry()
+    match = _LEADING_NUMBER.match(text)
+    if match is None or not match.group(2):
+        return None
+    try:
+        return ureg.Quantity(float(match.group(1)), match.group(2))
+    except Exception:  # not a unit pint knows either: report the original error
+        return None
+
+
+def angle_power(quantity) -> int:
+    """Return the power of angle in ``quantity``'s unit (deg → 1, rpm → 1, Hz → 0).
+
+    pint treats angles as dimensionless, so "2 deg" and "2 %" or "1 Hz" and
+    "1 rpm" would otherwise convert into each other silently. Counting the
+    radians in the root units tells an angle from a plain fraction and a
+    rotational speed from a frequency.
+    """
+    ureg = registry()
+    _, root = ureg.get_root_units(quantity.units)
+    return int(root._units.get("radian", 0))
+
+
+def same_kind(quantity, unit: str) -> bool:
+    """True when ``quantity`` converts to ``unit`` and has the same power of angle."""
+    ureg = registry()
+    reference = ureg.Quantity(1, unit)
+    if quantity.dimensionality != reference.dimensionality:
+        return False
+    return angle_power(quantity) == angle_power(reference)
+
+
+def format_number(value: float) -> str:
+    """Shortest text that reads back as exactly ``value`` ("2", "0.1", "1e-05")."""
+    value = float(value)
+    if not math.isfinite(value):
+        raise ValueError(f"cannot write a non-finite number: {value!r}")
+    if value.is_integer() and abs(value) < 1e15:
+        return str(int(value))
+    return repr(value)
+
+
+def format_quantity(value: float, unit: str) -> str:
+    """Write ``value`` in ``unit`` as text a design file accepts, e.g. "2 mm".
+
+    The number is written so that parsing the text gives back exactly the
+    same float.
+    """
+    return f"{format_number(value)} {unit}"
