@@ -137,13 +137,19 @@ def angle_power(quantity) -> int:
     return int(root._units.get("radian", 0))
 
 
+@lru_cache(maxsize=256)
+def _unit_kind(unit: str):
+    """(dimensionality, power of angle) of a unit, cached: building it is slow in pint."""
+    reference = registry().Quantity(1, unit)
+    return reference.dimensionality, angle_power(reference)
+
+
 def same_kind(quantity, unit: str) -> bool:
     """True when ``quantity`` converts to ``unit`` and has the same power of angle."""
-    ureg = registry()
-    reference = ureg.Quantity(1, unit)
-    if quantity.dimensionality != reference.dimensionality:
+    dimensionality, power = _unit_kind(unit)
+    if quantity.dimensionality != dimensionality:
         return False
-    return angle_power(quantity) == angle_power(reference)
+    return angle_power(quantity) == power
 
 
 def format_number(value: float) -> str:

@@ -1,0 +1,662 @@
+"""Read and write actuator design files (TOML) and describe them as a JSON Schema.
+
+A design file is TOML with ``format_version = 1``. Quantities are strings
+with units ("2 mm", "15 uA", "25 ms", "5 years", "300 rpm"); they are parsed
+with pint (through :mod:`turnkit.units`) and converted once, here, into the
+plain floats of :mod:`turnkit.design`. Everything about a field — its key,
+units, range, default and description — comes from the sections'
+``FIELDS`` tables, so loading, saving, validation and the schema agree.
+
+Every problem raises :class:`turnkit.errors.DesignFileError` naming the entry
+(``gear_train[2].pitch``), the value, and what was expected; unknown keys get
+a did-you-mean; TOML syntax errors give the line.
+
+Examples
+--------
+>>> design = loads_design('''
+... format_version = 1
+... name = "test valve"
+... [[gear_train]]
+... kind = "lead_screw"
+... pitch = "2 mm"
+... ''')
+>>> design.gear_train[0].pitch_mm
+2.0
+>>> loads_design(dump_design(design)) == design
+True
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import os
+import re
+import tempfile
+from functools import lru_cache
+from pathlib import Path
+from typing import Any
+
+from . import design as d
+from .errors import DesignFileError, DesignValueError
+
+__all__ = [
+    "load_design",
+    "loads_design",
+    "dump_design",
+    "save_design",
+    "design_schema",
+    "trace_path",
+]
+
+_SECTIONS: dict[str, type] = {
+    "sensor": d.SensorDesign,
+    "latches": d.LatchDesign,
+    "counter": d.CounterDesign,
+    "schedule": d.ScheduleDesign,
+    "requirements": d.Requirements,
+}
+_TOP_KEYS = (
+    "format_version", "name", "description", "gear_train", "sensor", "latches", "counter", "schedule",
+    "power", "battery", "motion", "requirements",
+)
+_POWER_KEYS = ("cutoff_voltage", "consumers", "host_supply")
+
+# A number followed by a unit, for the JSON Schema (the range is checked on load).
+_QUANTITY_PATTERN = r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*[^\s\d.+-].*$"
+_PERCENT_PATTERN = r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*(%|percent)\s*$"
+_TOML_LINE = re.compile(r"at line (\d+)")
+
+#: An example value for each canonical unit, shown in messages and the schema.
+_EXAMPLES = {
+    "mm": "2 mm", "deg": "1.5 deg", "rpm": "300 rpm", "mm/s": "5 mm/s", "deg/s^2": "3600 deg/s^2",
+    "mm/s^2": "100 mm/s^2", "s": "2 s", "ms": "25 ms", "us": "50 us", "years": "5 years", "mV": "2 mV",
+    "V": "1.5 V", "uA": "15 uA", "mAh": "3000 mAh", "Hz": "20 Hz", "degC": "20 degC",
+}
+
+
+# --- reading ---------------------------------------------------------------------
+
+def load_design(path: str | os.PathLike) -> d.ActuatorDesign:
+    """Read a design file.
+
+    Parameters
+    ----------
+    path : str or path-like
+        The TOML design file. Motion trace paths in it are relative to its
+        folder; each trace file must exist.
+
+    Returns
+    -------
+    ActuatorDesign
+
+    Raises
+    ------
+    DesignFileError
+        When the file cannot be read or any entry is invalid.
+    """
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise DesignFileError("", "design file not found", source=str(path)) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise DesignFileError("", f"cannot read the design file: {exc}", source=str(path)) from None
+    design = loads_design(text, source=str(path))
+    for index, scenario in enumerate(design.motion):
+        if scenario.trace is not None:
+            resolved = trace_path(scenario, path)
+            if not resolved.is_file():
+                raise DesignFileError(
+                    f"motion[{index}].trace",
+                    f"trace file {scenario.trace!r} not found (looked for {resolved}); "
+                    "trace paths are relative to the design file",
+                    source=str(path),
+                )
+    return design
+
+
+def loads_design(text: str, source: str = "<string>") -> d.ActuatorDesign:
+    """Read a design from TOML text.
+
+    Parameters
+    ----------
+    text : str
+        The TOML text.
+    source : str
+        Where the text came from, shown in error messages.
+
+    Returns
+    -------
+    ActuatorDesign
+
+    Raises
+    ------
+    DesignFileError
+        On a TOML syntax error (with its line), an unknown or missing key, a
+        value of the wrong type, unit dimension or range.
+    """
+    import tomllib
+
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        match = _TOML_LINE.search(str(exc))
+        line = int(match.group(1)) if match else None
+        raise DesignFileError("", f"TOML syntax error: {exc}", source=source, line=line) from None
+    return _Reader(source).design(data)
+
+
+def trace_path(scenario: d.MotionScenario, design_file: str | os.PathLike) -> Path:
+    """Where a trace scenario's CSV file is: its path taken relative to the design file's folder."""
+    if scenario.trace is None:
+        raise DesignValueError("MotionScenario.trace", None, "a file path", hint="this scenario has no trace")
+    trace = Path(scenario.trace)
+    if trace.is_absolute():
+        return trace
+    return Path(design_file).parent / trace
+
+
+class _Reader:
+    """Turns parsed TOML into design objects, naming the path of any bad entry."""
+
+    def __init__(self, source: str):
+        self.source = source
+
+    def error(self, path: str, message: str) -> DesignFileError:
+        return DesignFileError(path, message, source=self.source)
+
+    # -- structure --
+
+    def design(self, data: dict) -> d.ActuatorDesign:
+        self.unknown_keys(data, _TOP_KEYS, "")
+        if "format_version" not in data:
+            raise self.error("format_version", f"missing; add format_version = {d.FORMAT_VERSION} at the top")
+        version = data["format_version"]
+        if isinstance(version, bool) or not isinstance(version, int) or version != d.FORMAT_VERSION:
+            raise self.error("format_version", f"{version!r} is not a format this turnkit reads "
+                                               f"(it reads format_version = {d.FORMAT_VERSION})")
+        kwargs = self.fields(d.ActuatorDesign, {k: v for k, v in data.items() if k in
+                                               ("format_version", "name", "description")}, "")
+        stages = self.array_of_tables(data, "gear_train", "")
+        kwargs["gear_train"] = tuple(self.stage(stage, f"gear_train[{i}]") for i, stage in enumerate(stages))
+        for key, cls in _SECTIONS.items():
+            if key in data:
+                kwargs[key] = self.section(cls, self.table(data, key, ""), key)
+        if "power" in data:
+            kwargs["power"] = self.power(self.table(data, "power", ""))
+        if "battery" in data:
+            kwargs["battery"] = self.section(d.BatteryDesign, self.table(data, "battery", ""), "battery")
+        scenarios = self.array_of_tables(data, "motion", "")
+        kwargs["motion"] = tuple(
+            self.section(d.MotionScenario, m, f"motion[{i}]") for i, m in enumerate(scenarios)
+        )
+        return self.build(d.ActuatorDesign, kwargs, "")
+
+    def stage(self, table: dict, path: str):
+        kinds = tuple(d.STAGE_KINDS)
+        if "kind" not in table:
+            raise self.error(f"{path}.kind", f"missing; a stage needs kind = one of {', '.join(kinds)}")
+        kind = table["kind"]
+        if kind not in d.STAGE_KINDS:
+            raise self.error(f"{path}.kind", f"{kind!r} is not a stage kind; expected one of "
+                                             f"{', '.join(kinds)}{self.suggest(kind, kinds)}")
+        rest = {k: v for k, v in table.items() if k != "kind"}
+        return self.section(d.STAGE_KINDS[kind], rest, path, extra_keys=("kind",))
+
+    def power(self, table: dict) -> d.PowerDesign:
+        self.unknown_keys(table, _POWER_KEYS, "power")
+        kwargs = self.fields(d.PowerDesign, {k: v for k, v in table.items() if k == "cutoff_voltage"}, "power")
+        consumers = self.array_of_tables(table, "consumers", "power")
+        kwargs["consumers"] = tuple(
+            self.section(d.PowerConsumer, c, f"power.consumers[{i}]") for i, c in enumerate(consumers)
+        )
+        if "host_supply" in table:
+            kwargs["host_supply"] = self.section(
+                d.HostSupply, self.table(table, "host_supply", "power"), "power.host_supply")
+        return self.build(d.PowerDesign, kwargs, "power")
+
+    def section(self, cls: type, table: dict, path: str, extra_keys: tuple[str, ...] = ()):
+        self.unknown_keys(table, tuple(spec.key for spec in cls.FIELDS), path, extra_keys)
+        return self.build(cls, self.fields(cls, table, path), path)
+
+    def build(self, cls: type, kwargs: dict, path: str):
+        try:
+            return cls(**kwargs)
+        except DesignValueError as exc:
+            attr = exc.field.split(".", 1)[1] if "." in exc.field else exc.field
+            key = cls.attr_to_key(attr)
+            where = f"{path}.{key}" if path else key
+            message = f"must be {exc.allowed}"
+            if exc.value is not None and exc.value != "set":
+                shown = f"{_number(exc.value)} {exc.unit}" if exc.unit and isinstance(exc.value, float) \
+                    else repr(exc.value)
+                message += f", not {shown}"
+            if exc.hint:
+                message += f"; {exc.hint}"
+            raise self.error(where, message) from None
+
+    def table(self, data: dict, key: str, path: str) -> dict:
+        value = data[key]
+        where = f"{path}.{key}" if path else key
+        if not isinstance(value, dict):
+            raise self.error(where, f"must be a table ([{where}]), not {value!r}")
+        return value
+
+    def array_of_tables(self, data: dict, key: str, path: str) -> list:
+        if key not in data:
+            return []
+        value = data[key]
+        where = f"{path}.{key}" if path else key
+        if not isinstance(value, list) or not all(isinstance(v, dict) for v in value):
+            raise self.error(where, f"must be an array of tables ([[{where}]]), not {value!r}")
+        return value
+
+    def unknown_keys(self, table: dict, known: tuple[str, ...], path: str, extra: tuple[str, ...] = ()) -> None:
+        allowed = tuple(known) + tuple(extra)
+        for key in table:
+            if key not in allowed:
+                where = f"{path}.{key}" if path else key
+                raise self.error(where, f"unknown key {key!r}{self.suggest(key, allowed)}")
+
+    @staticmethod
+    def suggest(word: Any, options: tuple[str, ...]) -> str:
+        close = difflib.get_close_matches(str(word), options, n=1, cutoff=0.6)
+        if close:
+            return f"; did you mean {close[0]!r}?"
+        return f"; expected one of {', '.join(options)}"
+
+    # -- values --
+
+    def fields(self, cls: type, table: dict, path: str) -> dict:
+        kwargs: dict[str, Any] = {}
+        for spec in cls.FIELDS:
+            where = f"{path}.{spec.key}" if path else spec.key
+            if spec.key not in table:
+                if spec.required:
+                    raise self.error(where, f"missing; expected {spec.dimension_text()}")
+                continue
+            kwargs.update(self.value(spec, table[spec.key], where))
+        return kwargs
+
+    def value(self, spec: d.FieldSpec, raw: Any, where: str) -> dict:
+        kind = spec.kind
+        if kind == "quantity":
+            return self.quantity(spec, raw, where)
+        if kind == "fraction":
+            number = self.fraction(raw, where)
+            self.check_range(spec, number, raw, where, "")
+            return {spec.key: number}
+        if kind == "number":
+            if isinstance(raw, bool) or not isinstance(raw, (int, float)):
+                raise self.error(where, f"{raw!r} is not a number; expected {spec.dimension_text()}")
+            self.check_range(spec, float(raw), raw, where, "")
+            return {spec.key: float(raw)}
+        if kind == "int":
+            if isinstance(raw, bool) or not isinstance(raw, int):
+                raise self.error(where, f"{raw!r} is not an integer; expected an integer {spec.range_text()}")
+            if not spec.in_range(raw):
+                raise self.error(where, f"{raw!r} is out of range; expected an integer {spec.range_text()}")
+            return {spec.key: raw}
+        if kind == "bool":
+            if not isinstance(raw, bool):
+                raise self.error(where, f"{raw!r} is not true or false")
+            return {spec.key: raw}
+        if kind == "choice":
+            if raw not in spec.choices:
+                raise self.error(where, f"{raw!r} is not allowed; expected "
+                                        f"{spec.dimension_text()}{self.suggest(raw, spec.choices)}")
+            return {spec.key: raw}
+        if not isinstance(raw, str):
+            raise self.error(where, f"{raw!r} is not a string; expected {spec.dimension_text()}")
+        try:
+            spec.check(raw, where)
+        except DesignValueError as exc:
+            raise self.error(where, f"{raw!r} is not allowed; expected {exc.allowed}") from None
+        return {spec.key: raw}
+
+    def quantity(self, spec: d.FieldSpec, raw: Any, where: str) -> dict:
+        example = _EXAMPLES[spec.units[0]]
+        if isinstance(raw, bool) or not isinstance(raw, (str, int, float)):
+            raise self.error(where, f"{raw!r} is not a quantity; expected {spec.dimension_text()} "
+                                    f"written as a string such as {example!r}")
+        outcome = _convert_quantity(raw, spec.units) if isinstance(raw, str) else ("unitless",)
+        if outcome[0] == "unitless":
+            raise self.error(where, f"{raw!r} has no unit; expected {spec.dimension_text()}, "
+                                    f"written with its unit such as {example!r}")
+        if outcome[0] == "unreadable":
+            raise self.error(where, f"cannot read {raw!r} as a quantity ({outcome[1]}); expected "
+                                    f"{spec.dimension_text()} such as {example!r}")
+        if outcome[0] == "dimension":
+            raise self.error(where, f"{raw!r} is {outcome[1]}; expected {spec.dimension_text()}, "
+                                    f"such as {example!r}")
+        _, unit, value = outcome
+        self.check_range(spec, value, raw, where, unit)
+        return {spec.attr_for(unit): value}
+
+    def fraction(self, raw: Any, where: str) -> float:
+        from .units import angle_power, parse_quantity
+
+        if isinstance(raw, bool):
+            raise self.error(where, f"{raw!r} is not a fraction; expected a number such as 0.02 or '2 %'")
+        if isinstance(raw, (int, float)):
+            return float(raw)
+        if not isinstance(raw, str):
+            raise self.error(where, f"{raw!r} is not a fraction; expected a number such as 0.02 or '2 %'")
+        try:
+            q = parse_quantity(raw, where)
+        except DesignValueError as exc:
+            raise self.error(where, f"cannot read {raw!r} ({exc.hint}); expected a number such as 0.02 "
+                                    "or a percentage such as '2 %'") from None
+        if not q.dimensionless or angle_power(q) != 0:
+            raise self.error(where, f"{raw!r} is {_describe_dimension(q)}; expected a fraction "
+                                    "(dimensionless), such as 0.02 or '2 %'")
+        return float(q.to("dimensionless").magnitude)
+
+    def check_range(self, spec: d.FieldSpec, value: float, raw: Any, where: str, unit: str) -> None:
+        if not math.isfinite(value):
+            raise self.error(where, f"{raw!r} is not a finite number")
+        if not spec.in_range(value):
+            shown = f"{spec.range_text()} {unit}".rstrip()
+            converted = f"{_number(value)} {unit}"
+            got = f" (= {converted})" if unit and " ".join(str(raw).split()) != converted else ""
+            raise self.error(where, f"{raw!r}{got} is out of range; expected {spec.dimension_text()} {shown}")
+
+
+@lru_cache(maxsize=4096)
+def _convert_quantity(raw: str, units: tuple[str, ...]) -> tuple:
+    """Read ``raw`` as one of ``units``: ("ok", unit, value), ("unitless",),
+    ("unreadable", reason) or ("dimension", words).
+
+    Cached because pint's parser dominates the time to read a design file.
+    """
+    from .units import parse_quantity, same_kind
+
+    try:
+        q = parse_quantity(raw, "")
+    except DesignValueError as exc:
+        return ("unreadable", exc.hint)
+    if q.unitless:
+        return ("unitless",)
+    for unit in units:
+        if same_kind(q, _pint_unit(unit)):
+            return ("ok", unit, float(q.to(_pint_unit(unit)).magnitude))
+    return ("dimension", _describe_dimension(q))
+
+
+def _pint_unit(unit: str) -> str:
+    """The pint spelling of a canonical unit ("deg/s^2" → "deg/s**2")."""
+    return unit.replace("^", "**")
+
+
+def _number(value: float) -> str:
+    from .units import format_number
+
+    return format_number(value)
+
+
+def _describe_dimension(q) -> str:
+    """Words for a quantity's dimension ("a time", "an angle", "dimensionless")."""
+    from .units import angle_power, same_kind
+
+    for unit, (dimension, _) in d.UNIT_DIMENSIONS.items():
+        if same_kind(q, _pint_unit(unit)):
+            article = "an" if dimension[0] in "aeiou" else "a"
+            return f"{article} {dimension}"
+    if q.dimensionless and angle_power(q) == 0:
+        return "dimensionless"
+    angle = angle_power(q)
+    text = str(q.dimensionality)
+    if angle:
+        text = f"[angle]^{angle} * {text}" if text != "dimensionless" else f"[angle]^{angle}"
+    return f"of dimension {text}"
+
+
+# --- writing ---------------------------------------------------------------------
+
+def _section_table(obj, skip: tuple[str, ...] = ()) -> dict:
+    """The TOML table of one section: every field that is set, quantities with units."""
+    from .units import format_quantity
+
+    table: dict[str, Any] = {}
+    for spec in type(obj).FIELDS:
+        if spec.key in skip:
+            continue
+        for unit, attr in zip(spec.units or ("",), spec.attrs):
+            value = getattr(obj, attr)
+            if value is None:
+                continue
+            if spec.kind == "quantity":
+                table[spec.key] = format_quantity(value, unit)
+            elif spec.kind in ("fraction", "number"):
+                table[spec.key] = float(value)
+            else:
+                table[spec.key] = value
+    return table
+
+
+def _design_dict(design: d.ActuatorDesign) -> dict:
+    data = _section_table(design)
+    data["gear_train"] = [{"kind": stage.KIND, **_section_table(stage)} for stage in design.gear_train]
+    for key in ("sensor", "latches", "counter", "schedule"):
+        data[key] = _section_table(getattr(design, key))
+    power = _section_table(design.power)
+    power["consumers"] = [_section_table(c) for c in design.power.consumers]
+    if design.power.host_supply is not None:
+        power["host_supply"] = _section_table(design.power.host_supply)
+    data["power"] = power
+    if design.battery is not None:
+        data["battery"] = _section_table(design.battery)
+    data["motion"] = [_section_table(m) for m in design.motion]
+    requirements = _section_table(design.requirements)
+    if requirements:
+        data["requirements"] = requirements
+    for key in ("gear_train", "motion"):
+        if not data[key]:
+            del data[key]
+    if not power["consumers"]:
+        del power["consumers"]
+    return data
+
+
+def dump_design(design: d.ActuatorDesign) -> str:
+    """Write a design as design-file TOML text.
+
+    Every field that is set is written, quantities as strings with their
+    unit ("2 mm", "25 ms"), numbers exactly, so that
+    ``loads_design(dump_design(x)) == x``.
+
+    Parameters
+    ----------
+    design : ActuatorDesign
+
+    Returns
+    -------
+    str
+        TOML text.
+    """
+    import tomli_w
+
+    if not isinstance(design, d.ActuatorDesign):
+        raise TypeError(f"dump_design expects an ActuatorDesign, not {type(design).__name__}")
+    header = "# turnkit actuator design file; quantities are strings with units.\n"
+    return header + tomli_w.dumps(_design_dict(design))
+
+
+def save_design(design: d.ActuatorDesign, path: str | os.PathLike, overwrite: bool = False) -> Path:
+    """Write a design file atomically.
+
+    The text is written to a temporary file in the same folder and moved into
+    place with :func:`os.replace`, so a crash never leaves half a file.
+
+    Parameters
+    ----------
+    design : ActuatorDesign
+    path : str or path-like
+        Target file (conventionally ``*.toml``).
+    overwrite : bool
+        Replace an existing file. Without it an existing file raises
+        :class:`FileExistsError`.
+
+    Returns
+    -------
+    pathlib.Path
+        The path written.
+    """
+    path = Path(path)
+    text = dump_design(design)
+    # A design that does not read back the same would silently lose data.
+    if loads_design(text, source=str(path)) != design:
+        raise DesignFileError("", "the design does not read back unchanged; not saved", source=str(path))
+    if path.exists() and not overwrite:
+        raise FileExistsError(f"{path} exists; pass overwrite=True to replace it")
+    folder = path.parent if str(path.parent) else Path(".")
+    fd, temp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
+            handle.write(text)
+            handle.flush()
+            os.fsync(handle.fileno())
+        if not overwrite and path.exists():
+            raise FileExistsError(f"{path} exists; pass overwrite=True to replace it")
+        os.replace(temp_name, path)
+    except BaseException:
+        if os.path.exists(temp_name):
+            os.unlink(temp_name)
+        raise
+    return path
+
+
+# --- JSON Schema -----------------------------------------------------------------
+
+def _field_schema(spec: d.FieldSpec) -> dict:
+    text = spec.description
+    if spec.kind == "quantity":
+        schema: dict[str, Any] = {
+            "type": "string",
+            "pattern": _QUANTITY_PATTERN,
+            "description": f"{text}. {spec.dimension_text().capitalize()}, {spec.range_text()}.",
+            "examples": [_EXAMPLES[u] for u in spec.units],
+        }
+    elif spec.kind in ("fraction", "number", "int"):
+        numeric: dict[str, Any] = {"type": "integer" if spec.kind == "int" else "number"}
+        if spec.low is not None:
+            numeric["exclusiveMinimum" if spec.low_open else "minimum"] = spec.low
+        if spec.high is not None:
+            numeric["exclusiveMaximum" if spec.high_open else "maximum"] = spec.high
+        if spec.kind == "fraction":
+            schema = {"anyOf": [numeric, {"type": "string", "pattern": _PERCENT_PATTERN}]}
+        else:
+            schema = numeric
+        schema["description"] = f"{text}; {spec.dimension_text()}, {spec.range_text()}."
+    elif spec.kind == "bool":
+        schema = {"type": "boolean", "description": text}
+    elif spec.kind == "choice":
+        schema = {"enum": list(spec.choices), "description": text}
+    elif spec.kind == "identifier":
+        schema = {"type": "string", "pattern": r"^[A-Za-z_][A-Za-z0-9_]*$", "description": text}
+    elif spec.kind == "path":
+        schema = {"type": "string", "minLength": 1, "description": text}
+    else:
+        schema = {"type": "string", "description": text}
+    if spec.default is not d.REQUIRED and spec.default is not None:
+        schema["default"] = _default_text(spec)
+    return schema
+
+
+def _default_text(spec: d.FieldSpec) -> Any:
+    from .units import format_quantity
+
+    if spec.kind == "quantity":
+        return format_quantity(spec.default, spec.units[0])
+    if spec.kind in ("fraction", "number"):
+        return float(spec.default)
+    return spec.default
+
+
+def _object_schema(cls: type, description: str, extra: dict | None = None, skip: tuple[str, ...] = ()) -> dict:
+    properties = {spec.key: _field_schema(spec) for spec in cls.FIELDS if spec.key not in skip}
+    properties.update(extra or {})
+    schema: dict[str, Any] = {
+        "type": "object",
+        "description": description,
+        "properties": properties,
+        "additionalProperties": False,
+    }
+    required = [spec.key for spec in cls.FIELDS if spec.required and spec.key not in skip]
+    if required:
+        schema["required"] = required
+    return schema
+
+
+def _doc_line(cls: type) -> str:
+    return (cls.__doc__ or "").strip().splitlines()[0]
+
+
+def design_schema() -> dict:
+    """The JSON Schema (draft 2020-12) of the design-file format.
+
+    The schema checks structure, keys, types, choices and the shape of
+    quantity strings; unit dimensions and ranges of quantities are stated in
+    the descriptions and checked by :func:`loads_design`.
+
+    Returns
+    -------
+    dict
+        A JSON-serialisable schema.
+    """
+    defs: dict[str, Any] = {}
+    for kind, cls in d.STAGE_KINDS.items():
+        stage = _object_schema(cls, _doc_line(cls), extra={"kind": {"const": kind, "description": "stage kind"}})
+        stage["required"] = ["kind"] + stage.get("required", [])
+        if cls is d.BeltStage:
+            stage["oneOf"] = [
+                {"required": ["teeth_driver", "teeth_driven"]},
+                {"required": ["pitch_diameter_driver", "pitch_diameter_driven"]},
+            ]
+        defs[f"{kind}_stage"] = stage
+    motion = _object_schema(d.MotionScenario, _doc_line(d.MotionScenario))
+    motion["allOf"] = [
+        {
+            "if": {"properties": {"kind": {"const": kind}}, "required": ["kind"]},
+            "then": {
+                "required": sorted(required),
+                "propertyNames": {"enum": ["name", "kind", "at", *sorted(required | optional)]},
+            },
+        }
+        for kind, (required, optional) in d.MOTION_FIELDS_BY_KIND.items()
+    ]
+    power_extra = {
+        "consumers": {"type": "array", "items": _object_schema(d.PowerConsumer, _doc_line(d.PowerConsumer))},
+        "host_supply": _object_schema(d.HostSupply, _doc_line(d.HostSupply)),
+    }
+    battery = _object_schema(d.BatteryDesign, _doc_line(d.BatteryDesign))
+    battery["anyOf"] = [{"required": ["chemistry"]}, {"required": ["capacity", "nominal_voltage"]}]
+    properties = {spec.key: _field_schema(spec) for spec in d.ActuatorDesign.FIELDS}
+    properties["format_version"] = {"const": d.FORMAT_VERSION, "description": "design-file format version"}
+    properties.update({
+        "gear_train": {
+            "type": "array",
+            "description": "gear stages from the motor to the output",
+            "items": {"oneOf": [{"$ref": f"#/$defs/{kind}_stage"} for kind in d.STAGE_KINDS]},
+        },
+        "sensor": _object_schema(d.SensorDesign, _doc_line(d.SensorDesign)),
+        "latches": _object_schema(d.LatchDesign, _doc_line(d.LatchDesign)),
+        "counter": _object_schema(d.CounterDesign, _doc_line(d.CounterDesign)),
+        "schedule": _object_schema(d.ScheduleDesign, _doc_line(d.ScheduleDesign)),
+        "power": _object_schema(d.PowerDesign, _doc_line(d.PowerDesign), extra=power_extra),
+        "battery": battery,
+        "motion": {"type": "array", "items": motion, "description": "motions that can happen while asleep"},
+        "requirements": _object_schema(d.Requirements, _doc_line(d.Requirements)),
+    })
+    return {
+        "$schema": "https://json-schema.org/draft/2020-12/schema",
+        "title": "turnkit actuator design file",
+        "description": f"Actuator design file, format_version {d.FORMAT_VERSION}. Quantities are strings with "
+                       "units, e.g. '2 mm', '15 uA', '25 ms', '5 years', '300 rpm'.",
+        "type": "object",
+        "required": ["format_version", "name"],
+        "additionalProperties": False,
+        "properties": properties,
+        "$defs": defs,
+    }
