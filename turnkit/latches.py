@@ -1,0 +1,425 @@
+"""Two Hall latches 90° apart: the quadrant code and the 0–360° angle.
+
+The AMR bridges give the shaft angle only modulo 180°. Two Hall latches on
+the same two-pole magnet, mounted 90° apart, split the turn into four
+quadrants and give a 2-bit reflected Gray code (one bit changes per quarter
+turn)::
+
+    quadrant q     0 (0–90°)   1 (90–180°)   2 (180–270°)   3 (270–360°)
+    code g1 g0     00          01            11             10
+
+Latch ``g1`` is high for θ in (180°, 360°), latch ``g0`` for θ in (90°, 270°).
+Gray → index is b1 = g1, b0 = g1 XOR g0.
+
+Half-turn resolution. The fine angle a = θ mod 180° has two candidates, a and
+a + 180°. The one that lies within 90° of the reported quadrant's centre
+(90°·q + 45°) is taken. A latch edge that is displaced by d from its nominal
+place reports the neighbouring quadrant for up to d past the edge; the pick
+is still right while d plus the fine-angle error stays below 45°. So
+
+    margin_deg = 45° − (switch_point_tolerance + hysteresis/2 + |magnet_misalignment| + fine error)
+
+and a design whose margin is not positive can read 180° wrong next to each of
+the four latch edges (see :attr:`HalfTurnMargin.fail_zones_deg`).
+
+:func:`decode_full_turn_deg` decodes raw bridge samples and applies the
+latch code in one blockwise pass, for long recordings and simulations.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import DesignValueError
+from .sensor import decode_block_deg
+
+__all__ = [
+    "GRAY_SEQUENCE",
+    "LOST_POSITION_CAUTION",
+    "QuadrantLatches",
+    "HalfTurnMargin",
+    "HalfTurnTrace",
+    "gray_to_quadrant",
+    "quadrant_to_gray",
+    "combine_half_turn_deg",
+    "decode_full_turn_deg",
+    "half_turn_margin",
+    "simulate_half_turn",
+]
+
+#: Codes (g1 g0 as a 2-bit integer) of quadrants 0, 1, 2, 3 in forward order.
+GRAY_SEQUENCE = (0b00, 0b01, 0b11, 0b10)
+
+#: Caution carried by every half-turn margin result.
+LOST_POSITION_CAUTION = (
+    "Caution: a 180° misread or a lost quarter-turn count moves the actuator to the wrong "
+    "place, which can trap or crush. These numbers are design estimates; verify on hardware, "
+    "re-home after any battery event, and follow local codes, functional-safety standards "
+    "(e.g. IEC 61508, ISO 13849) and licensed practice."
+)
+
+# Nominal centre of each latch's "low -> high" edge (mech deg): g1 then g0.
+_LATCH_BASE_DEG = (180.0, 90.0)
+
+
+def gray_to_quadrant(code) -> np.ndarray:
+    """Quadrant index 0..3 from the 2-bit Gray code ``g1 g0`` (int or array of ints)."""
+    c = np.asarray(code)
+    if c.size and (np.any(c < 0) or np.any(c > 3)):
+        raise DesignValueError("code", code, "2-bit codes in 0..3")
+    c = c.astype(np.int64)
+    g1 = c >> 1
+    return (g1 << 1) | (g1 ^ (c & 1))
+
+
+def quadrant_to_gray(quadrant) -> np.ndarray:
+    """2-bit Gray code ``g1 g0`` of quadrant index 0..3 (int or array)."""
+    q = np.asarray(quadrant)
+    if q.size and (np.any(q < 0) or np.any(q > 3)):
+        raise DesignValueError("quadrant", quadrant, "integers in 0..3")
+    q = q.astype(np.int64)
+    return q ^ (q >> 1)
+
+
+def combine_half_turn_deg(fine_deg, code) -> np.ndarray:
+    """Join the 180°-periodic fine angle with the latch code into 0–360°.
+
+    Parameters
+    ----------
+    fine_deg : array_like
+        Mechanical angle modulo 180° from the AMR bridges (deg); other values
+        are reduced modulo 180° first.
+    code : array_like of int
+        Latch Gray code ``g1 g0`` (0..3) for the same samples.
+
+    Returns
+    -------
+    numpy.ndarray
+        Mechanical angle in [0, 360) (deg): of the candidates a and a + 180°
+        (a = fine mod 180°) the one within 90° of the reported quadrant's
+        centre (at an exact tie, the half-turn reported by latch g1).
+    """
+    fine, code = _broadcast_codes(np.asarray(fine_deg, dtype=float), code)
+    out = np.empty(fine.shape)
+    ff, cf, of = fine.ravel(), code.ravel(), out.reshape(-1)
+    buf = np.empty(min(_BLOCK, of.size))
+    for start in range(0, of.size, _BLOCK):
+        stop = min(of.size, start + _BLOCK)
+        o, b = of[start:stop], buf[:stop - start]
+        # a = fine − 180·floor(fine/180), with a rounding to 180 folded back to 0.
+        np.multiply(ff[start:stop], 1.0 / 180.0, out=o)
+        np.floor(o, out=o)
+        np.multiply(o, -180.0, out=o)
+        np.add(o, ff[start:stop], out=o)
+        np.greater_equal(o, 180.0, out=b)
+        np.multiply(b, 180.0, out=b)
+        np.subtract(o, b, out=o)
+        _pick_half_block(o, cf[start:stop], b)
+    return out
+
+
+def decode_full_turn_deg(x_mV, y_mV, code) -> np.ndarray:
+    """Shaft angle in [0, 360) from raw bridge samples and the latch code in one pass.
+
+    Same result as ``combine_half_turn_deg(decode_deg(x_mV, y_mV), code)``,
+    computed block by block without large temporaries.
+
+    Parameters
+    ----------
+    x_mV, y_mV : array_like
+        cos and sin bridge samples (mV, or any common unit).
+    code : array_like of int
+        Latch Gray codes ``g1 g0`` (0..3).
+
+    Returns
+    -------
+    numpy.ndarray
+        Mechanical angle in [0, 360) (deg).
+    """
+    x, y = np.broadcast_arrays(np.asarray(x_mV, dtype=float), np.asarray(y_mV, dtype=float))
+    x, code = _broadcast_codes(x, code)
+    y = np.broadcast_to(y, x.shape)
+    out = np.empty(x.shape)
+    xf, yf, cf, of = x.ravel(), y.ravel(), code.ravel(), out.reshape(-1)
+    buf = np.empty(min(_BLOCK, of.size))
+    for start in range(0, of.size, _BLOCK):
+        stop = min(of.size, start + _BLOCK)
+        o, b = of[start:stop], buf[:stop - start]
+        decode_block_deg(xf[start:stop], yf[start:stop], o, b)
+        _pick_half_block(o, cf[start:stop], b)
+    return out
+
+
+_BLOCK = 1 << 15
+# Indexed by the Gray code g1 g0 (0b00, 0b01, 0b10, 0b11 = quadrants 0, 1, 3, 2):
+# +1 for even quadrants, -1 for odd ones, and 180° where the code says "second half".
+_SIDE = np.array([1.0, -1.0, -1.0, 1.0])
+_HALF_DEG = np.array([0.0, 0.0, 180.0, 180.0])
+
+
+def _broadcast_codes(values, code):
+    c = np.asarray(code)
+    if c.dtype.kind not in "iu":
+        if c.dtype.kind == "f" and c.size and np.all(np.floor(c) == c):
+            c = c.astype(np.int64)
+        else:
+            raise DesignValueError("code", code, "2-bit integer codes in 0..3")
+    if c.size and (int(c.min()) < 0 or int(c.max()) > 3):
+        raise DesignValueError("code", code, "2-bit codes in 0..3")
+    values, c = np.broadcast_arrays(values, c)
+    return values, c
+
+
+def _pick_half_block(a, code, buf):
+    """In place: a in [0, 180) -> a or a + 180° as the latch code says.
+
+    With s = a − 90°, the candidate a lies within 90° of the quadrant centre
+    unless s·side > 45° (even quadrants: a > 135°; odd: a < 45°); the latch
+    bit g1 then says which of the two halves that is. At an exact tie (both
+    candidates 90° from the centre) the half reported by g1 wins.
+    """
+    side = _SIDE.take(code)
+    half = _HALF_DEG.take(code)
+    np.subtract(a, 90.0, out=buf)
+    np.multiply(buf, side, out=buf)
+    np.greater(buf, 45.0, out=buf)
+    np.multiply(buf, 180.0, out=buf)
+    np.subtract(half, buf, out=buf)
+    np.abs(buf, out=buf)
+    np.add(a, buf, out=a)
+    return a
+
+
+def _nonneg(value, field: str, upper: float) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)):
+        raise DesignValueError(field, value, f"a number in [0, {upper:g})", unit="deg")
+    value = float(value)
+    if not (math.isfinite(value) and 0.0 <= value < upper):
+        raise DesignValueError(field, value, f"in [0, {upper:g})", unit="deg")
+    return value
+
+
+@dataclass(frozen=True, slots=True)
+class QuadrantLatches:
+    """Two Hall latches 90° apart on a two-pole magnet (mechanical degrees).
+
+    Parameters
+    ----------
+    switch_point_tolerance_deg : float
+        Worst-case shift of any latch edge from its nominal place, either
+        way (deg), in [0, 90). Covers the latch's operate-point spread and
+        its placement on the board.
+    hysteresis_deg : float
+        Full width between a latch's operate and release points (deg), in
+        [0, 90). Each edge moves by half of it in the direction of travel.
+    magnet_misalignment_deg : float
+        Rotation of the latch pair against the AMR zero, e.g. magnet pole
+        axis or board rotation (deg, signed), size below 90. Shifts all
+        edges alike.
+    """
+
+    switch_point_tolerance_deg: float = 5.0
+    hysteresis_deg: float = 2.0
+    magnet_misalignment_deg: float = 0.0
+
+    def __post_init__(self):
+        name = type(self).__name__
+        object.__setattr__(self, "switch_point_tolerance_deg",
+                           _nonneg(self.switch_point_tolerance_deg,
+                                   f"{name}.switch_point_tolerance_deg", 90.0))
+        object.__setattr__(self, "hysteresis_deg",
+                           _nonneg(self.hysteresis_deg, f"{name}.hysteresis_deg", 90.0))
+        mis = self.magnet_misalignment_deg
+        if isinstance(mis, bool) or not isinstance(mis, (int, float, np.integer, np.floating)) \
+                or not math.isfinite(float(mis)) or abs(float(mis)) >= 90.0:
+            raise DesignValueError(f"{name}.magnet_misalignment_deg", mis, "in (-90, 90)", unit="deg")
+        object.__setattr__(self, "magnet_misalignment_deg", float(mis))
+
+    def code(self, angle_path_deg, switch_shift_deg=(0.0, 0.0)) -> np.ndarray:
+        """Latch Gray codes along a path of mechanical angles, with hysteresis.
+
+        Parameters
+        ----------
+        angle_path_deg : array_like
+            Shaft angles in time order (deg, not wrapped); the latches hold
+            their state inside the hysteresis band, so the order matters.
+        switch_shift_deg : (float, float)
+            Actual edge shift of latch g1 and latch g0 of one particular unit
+            (deg, signed), on top of ``magnet_misalignment_deg``. Not limited to the
+            tolerance, so that a failing unit can be simulated.
+
+        Returns
+        -------
+        numpy.ndarray of uint8
+            Codes ``g1 g0`` (0..3), same length as the path.
+        """
+        theta = np.ravel(np.asarray(angle_path_deg, dtype=float))
+        shifts = tuple(float(s) for s in switch_shift_deg)
+        if len(shifts) != 2 or not all(math.isfinite(s) for s in shifts):
+            raise DesignValueError("switch_shift_deg", switch_shift_deg, "two finite numbers",
+                                   unit="deg")
+        threshold = math.sin(math.radians(0.5 * self.hysteresis_deg))
+        bits = []
+        for base, shift in zip(_LATCH_BASE_DEG, shifts):
+            field = np.sin(np.radians(theta - base - shift - self.magnet_misalignment_deg))
+            bits.append(_hysteretic(field, threshold))
+        return (bits[0].astype(np.uint8) << 1) | bits[1].astype(np.uint8)
+
+
+def _hysteretic(field: np.ndarray, threshold: float) -> np.ndarray:
+    """Latch output: on above +threshold, off below -threshold, else hold (vectorised)."""
+    on = field > threshold
+    defined = on | (field < -threshold)
+    idx = np.where(defined, np.arange(field.size), -1)
+    idx = np.maximum.accumulate(idx) if field.size else idx
+    # Before the first definite reading the latch is taken to sit on its nominal side.
+    return np.where(idx >= 0, on[np.maximum(idx, 0)], field >= 0.0)
+
+
+@dataclass(frozen=True, slots=True)
+class HalfTurnMargin:
+    """How far the latch edges may drift before the 0–360° angle jumps by 180°.
+
+    Attributes
+    ----------
+    margin_deg : float
+        45° minus everything that eats it (deg). Positive means no unit inside
+        the tolerances can read 180° wrong.
+    ok : bool
+        True when ``margin_deg`` is positive and at least ``required_margin_deg``.
+    consumed_deg : float
+        tolerance + hysteresis/2 + abs(misalignment) + fine error (deg).
+    available_deg : float
+        45°, the most a pair of latches 90° apart can tolerate.
+    switch_point_tolerance_deg, hysteresis_half_deg, magnet_misalignment_deg, fine_error_deg : float
+        The parts of ``consumed_deg`` (deg).
+    required_margin_deg : float
+        The margin asked for (deg).
+    fail_zones_deg : tuple of (float, float)
+        Shaft-angle intervals (start, end) in deg, start in [0, 360) and end
+        possibly past 360 across the wrap, next to the four latch edges where
+        a worst-case unit reads 180° wrong; empty when ``margin_deg`` >= 0.
+    caution : str
+        Safety caution about lost position.
+    """
+
+    margin_deg: float
+    ok: bool
+    consumed_deg: float
+    available_deg: float
+    switch_point_tolerance_deg: float
+    hysteresis_half_deg: float
+    magnet_misalignment_deg: float
+    fine_error_deg: float
+    required_margin_deg: float
+    fail_zones_deg: tuple
+    caution: str = LOST_POSITION_CAUTION
+
+
+def half_turn_margin(latches: QuadrantLatches, fine_error_deg: float = 0.0,
+                     required_margin_deg: float = 0.0) -> HalfTurnMargin:
+    """Margin of the half-turn decision and where on the turn it fails.
+
+    Parameters
+    ----------
+    latches : QuadrantLatches
+        Latch tolerances.
+    fine_error_deg : float
+        Peak mechanical error of the fine (AMR) angle (deg), >= 0, e.g.
+        ``error_summary(sensor, calibrated=True).peak_error_deg``.
+    required_margin_deg : float
+        Design margin to keep in reserve (deg), >= 0.
+
+    Returns
+    -------
+    HalfTurnMargin
+    """
+    if not isinstance(latches, QuadrantLatches):
+        raise DesignValueError("latches", latches, "a QuadrantLatches")
+    fine = _nonneg(fine_error_deg, "fine_error_deg", 90.0)
+    required = _nonneg(required_margin_deg, "required_margin_deg", 45.0)
+    edge = (latches.switch_point_tolerance_deg + 0.5 * latches.hysteresis_deg
+            + abs(latches.magnet_misalignment_deg))
+    consumed = edge + fine
+    available = 45.0
+    margin = available - consumed
+    zones = []
+    if margin < 0:
+        inner, outer = available - fine, edge
+        for e in (0.0, 90.0, 180.0, 270.0):
+            for lo, hi in ((e - outer, e - inner), (e + inner, e + outer)):
+                start = lo % 360.0
+                zones.append((start, start + (hi - lo)))
+        zones.sort()
+    return HalfTurnMargin(
+        margin_deg=margin,
+        ok=bool(margin > 0 and margin >= required),
+        consumed_deg=consumed,
+        available_deg=available,
+        switch_point_tolerance_deg=latches.switch_point_tolerance_deg,
+        hysteresis_half_deg=0.5 * latches.hysteresis_deg,
+        magnet_misalignment_deg=abs(latches.magnet_misalignment_deg),
+        fine_error_deg=fine,
+        required_margin_deg=required,
+        fail_zones_deg=tuple(zones),
+    )
+
+
+@dataclass(frozen=True, slots=True)
+class HalfTurnTrace:
+    """A simulated path through the latches and the half-turn combine.
+
+    Attributes
+    ----------
+    angle_deg : numpy.ndarray
+        True shaft angle along the path (deg, unwrapped).
+    code : numpy.ndarray
+        Latch Gray codes (0..3).
+    combined_deg : numpy.ndarray
+        Combined angle in [0, 360) (deg).
+    error_deg : numpy.ndarray
+        combined − true, wrapped to [-180, 180) (deg).
+    wrong : numpy.ndarray of bool
+        Samples where the combined angle is off by more than 90° (a half-turn slip).
+    """
+
+    angle_deg: np.ndarray
+    code: np.ndarray
+    combined_deg: np.ndarray
+    error_deg: np.ndarray
+    wrong: np.ndarray
+
+    @property
+    def wrong_angles_deg(self) -> np.ndarray:
+        """True shaft angles (mod 360°, deg) where the combine slipped by a half turn."""
+        return np.mod(self.angle_deg[self.wrong], 360.0)
+
+
+def simulate_half_turn(latches: QuadrantLatches, angle_path_deg, fine_deg=None,
+                       switch_shift_deg=(0.0, 0.0)) -> HalfTurnTrace:
+    """Run a path of shaft angles through the latches and the combine.
+
+    Parameters
+    ----------
+    latches : QuadrantLatches
+    angle_path_deg : array_like
+        True shaft angles in time order (deg).
+    fine_deg : array_like, optional
+        Fine angle from the AMR decode (deg, mod 180); default the exact
+        ``angle mod 180``.
+    switch_shift_deg : (float, float)
+        Actual latch edge shifts of the simulated unit (deg), see
+        :meth:`QuadrantLatches.code`.
+    """
+    theta = np.ravel(np.asarray(angle_path_deg, dtype=float))
+    fine = np.mod(theta, 180.0) if fine_deg is None else np.ravel(np.asarray(fine_deg, dtype=float))
+    if fine.shape != theta.shape:
+        raise DesignValueError("fine_deg", f"{fine.size} samples",
+                               f"as many samples as angle_path_deg ({theta.size})")
+    code = latches.code(theta, switch_shift_deg)
+    combined = combine_half_turn_deg(fine, code)
+    err = np.mod(combined - theta + 180.0, 360.0) - 180.0
+    return HalfTurnTrace(theta, code, combined, err, np.abs(err) > 90.0)
