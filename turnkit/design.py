@@ -560,12 +560,12 @@ class SensorDesign(_Section):
         FieldSpec("offset_y", "quantity", "offset of the sin bridge output", units=("mV",), default=0.0),
         FieldSpec("gain_mismatch", "fraction", "relative amplitude difference between the two bridges",
                   low=-0.5, high=0.5, default=0.0),
-        FieldSpec("phase_error", "quantity", "departure of the two bridges from 45 deg mechanical spacing",
+        FieldSpec("phase_error", "quantity", "departure of the two bridge signals from quadrature, in electrical degrees (twice the mechanical)",
                   units=("deg",), low=-45.0, high=45.0, default=0.0),
         FieldSpec("harmonic2", "fraction", "second-harmonic content relative to the amplitude",
-                  low=0.0, high=1.0, high_open=True, default=0.0),
+                  low=-0.5, high=0.5, low_open=True, high_open=True, default=0.0),
         FieldSpec("harmonic3", "fraction", "third-harmonic content relative to the amplitude",
-                  low=0.0, high=1.0, high_open=True, default=0.0),
+                  low=-0.5, high=0.5, low_open=True, high_open=True, default=0.0),
         FieldSpec("noise_rms", "quantity", "RMS noise on each bridge output", units=("mV",),
                   low=0.0, default=0.0),
         FieldSpec("adc_bits", "int", "ADC resolution", low=1, high=32, default=12),
@@ -738,7 +738,7 @@ class BatteryDesign(_Section):
 
     FIELDS: ClassVar[tuple[FieldSpec, ...]] = (
         FieldSpec("chemistry", "identifier", "key of a cell in turnkit's battery table, e.g. "
-                  "'lithium_iron_disulfide_aa' (omitted: a custom cell)"),
+                  "'li_fes2_aa' (omitted: a custom cell)"),
         FieldSpec("cells_series", "int", "cells in series", low=1, default=1),
         FieldSpec("cells_parallel", "int", "strings in parallel", low=1, default=1),
         FieldSpec("temperature", "quantity", "cell temperature used for derating", units=("degC",),

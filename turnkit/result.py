@@ -187,7 +187,7 @@ class Series:
     name: str
     x: np.ndarray
     y: np.ndarray
-    style: str = "line"  # "line", "step", "points"
+    style: str = "line"  # "line", "dashed" (a reference line), "step", "points"
 
     def __post_init__(self) -> None:
         x = np.asarray(self.x, dtype=float)

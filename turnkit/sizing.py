@@ -1,0 +1,890 @@
+"""The sizing engine: one call from a design to every number, check and curve.
+
+:func:`size` turns an :class:`~turnkit.design.ActuatorDesign` into an
+immutable :class:`~turnkit.result.SizingResult`. It builds the numeric models
+(gear train, angle sensor, latches, counter, schedule, power, battery and the
+motion scenarios), runs them, compares the results with the requirements and
+collects plot data for the views. It computes nothing on its own that a model
+module already does: the arithmetic here is unit bookkeeping and comparison.
+
+Result keys (``result.value(key)``) carry their unit in the name; the curve
+keys are ``"life_vs_poll_period"`` (or ``"current_vs_poll_period"`` on a host
+supply), ``"backdrive_event"``, ``"backdrive_error"``,
+``"resolution_vs_reduction"``, ``"backdrive_speed_vs_reduction"``,
+``"current_profile"`` and ``"sensor_error"``.
+
+Examples
+--------
+>>> from turnkit.designfile import loads_design
+>>> design = loads_design('''
+... format_version = 1
+... name = "bench valve"
+... [[gear_train]]
+... kind = "external"
+... teeth_driver = 18
+... teeth_driven = 54
+... [[gear_train]]
+... kind = "lead_screw"
+... pitch = "2 mm"
+... [[power.consumers]]
+... name = "electronics"
+... asleep = "2 uA"
+... waking = "1 mA"
+... polling = "1.5 mA"
+... tracking = "3 mA"
+... [battery]
+... chemistry = "li_fes2_aa"
+... cells_series = 2
+... [requirements]
+... stroke = "100 mm"
+... backdrive_speed = "5 mm/s"
+... battery_life = "5 years"
+... ''')
+>>> result = size(design, curves=False)
+>>> result.value("ratio").value
+'3'
+>>> round(result.value("max_poll_period_ms").value, 3)
+33.333
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+import tomllib
+import warnings
+from dataclasses import replace
+from fractions import Fraction
+from functools import lru_cache
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from . import __version__
+from . import angle_error, battery as batt, bounds, gears, latches as latch_mod, power
+from . import sensor as sensor_mod
+from . import simulation as sim
+from .counter import CounterSettings
+from .design import ActuatorDesign, MotionScenario
+from .errors import DesignValueError, TurnkitWarning
+from .motion import (AtOutput, BackDriveBursts, CoastDown, ConstantSpeed, MotionProfile, TrapezoidMove,
+                     Vibration, load_trace_csv)
+from .result import (Band, Check, Curve, EquationText, Marker, Scenario, Series, SizingResult, Value)
+from .schedule import AdaptiveSchedule, FixedSchedule
+
+__all__ = [
+    "size",
+    "build_train",
+    "build_sensor",
+    "build_latches",
+    "build_counter",
+    "build_schedule",
+    "build_profile",
+    "build_battery",
+    "build_motion",
+    "motor_rpm_for_output_speed",
+    "output_speed_for_motor_rpm",
+    "GENERAL_CAUTIONS",
+]
+
+#: Cautions every summary carries, in our own words.
+GENERAL_CAUTIONS: tuple[str, ...] = (
+    "Powered actuators pinch and crush: a geared output is slow but strong, and meshes, screw nuts, "
+    "racks and the driven load can trap fingers and hands. Assess the machine (for example under "
+    "ISO 12100), keep or guard safe gaps, and follow your local codes.",
+    "A lost or wrong count moves the actuator to the wrong place, sometimes without any error shown "
+    "(three quarter-steps between two polls read as one step back). Re-home after any battery event "
+    "or fault, and never rely on the count alone where a wrong position can hurt someone.",
+    "These figures are design estimates, not a safety case. Where the position feeds a safety "
+    "function, assess it under the applicable functional-safety standard (IEC 61508, ISO 13849-1, "
+    "IEC 62061, ISO 26262 or your sector's) and rely on licensed practice where the law asks for it.",
+)
+
+_BACKDRIVE_CAUTION = (
+    "This gear train back-drives: a load, a spring or a hand can move the output with the power "
+    "off, and a load can fall or run away when the motor lets go. Provide a brake or a self-locking "
+    "stage where that is dangerous."
+)
+_CREEP_CAUTION = (
+    "A self-locking stage (worm or lead screw) holds statically but can creep under vibration; do not "
+    "treat it as a brake."
+)
+
+_AMBIGUOUS_POLICY = {"hold": "flag_and_hold", "guess": "guess_last_direction"}
+_HOURS_PER_YEAR = 8766.0
+
+
+# ---------------------------------------------------------------------------
+# building the models from the design
+# ---------------------------------------------------------------------------
+
+def _relabel(exc: DesignValueError, where: str) -> DesignValueError:
+    name = exc.field.split(".", 1)[-1]
+    return DesignValueError(f"{where}.{name}", exc.value, exc.allowed, unit=exc.unit, hint=exc.hint)
+
+
+def _stage(stage, index: int):
+    kind = stage.KIND
+    eff = getattr(stage, "efficiency", None)
+    if kind == "external":
+        return gears.ExternalPair(stage.teeth_driver, stage.teeth_driven, backlash_deg=stage.backlash_deg,
+                                  efficiency=eff if eff is not None else 0.98)
+    if kind == "internal":
+        return gears.InternalPair(stage.teeth_driver, stage.teeth_driven, backlash_deg=stage.backlash_deg,
+                                  efficiency=eff if eff is not None else 0.98)
+    if kind == "planetary":
+        return gears.PlanetaryStage(stage.sun_teeth, stage.ring_teeth, held=stage.held,
+                                    input_member=stage.input, output_member=stage.output,
+                                    planet_teeth=stage.planet_teeth, backlash_deg=stage.backlash_deg,
+                                    efficiency=eff if eff is not None else 0.97)
+    if kind == "worm":
+        return gears.WormStage(starts=stage.starts, wheel_teeth=stage.wheel_teeth,
+                               lead_angle_deg=stage.lead_angle_deg,
+                               friction_coefficient=stage.friction_coefficient,
+                               backlash_deg=stage.backlash_deg, efficiency=eff)
+    if kind == "belt":
+        return gears.BeltStage(teeth_driver=stage.teeth_driver, teeth_driven=stage.teeth_driven,
+                               pitch_diameter_driver_mm=stage.pitch_diameter_driver_mm,
+                               pitch_diameter_driven_mm=stage.pitch_diameter_driven_mm,
+                               backlash_deg=stage.backlash_deg, efficiency=eff if eff is not None else 0.96)
+    if kind == "lead_screw":
+        friction = stage.friction_coefficient
+        if friction is None:
+            # Typical dry-to-greased sliding bronze or plastic nut on steel (common practice).
+            friction = 0.1
+        kwargs: dict[str, Any] = dict(pitch_mm=stage.pitch_mm, starts=stage.starts, length_mm=stage.length_mm,
+                                      mean_diameter_mm=stage.diameter_mm, thread_angle_deg=stage.thread_angle_deg,
+                                      friction_coefficient=friction, ball=stage.ball,
+                                      backlash_mm=stage.backlash_mm)
+        if stage.ball and eff is not None:
+            kwargs["ball_efficiency"] = eff
+        return gears.LeadScrew(**kwargs)
+    if kind == "rack":
+        return gears.RackAndPinion(module_mm=stage.module_mm, pinion_teeth=stage.pinion_teeth,
+                                   length_mm=stage.length_mm, backlash_mm=stage.backlash_mm,
+                                   efficiency=eff if eff is not None else 0.95)
+    raise DesignValueError(f"gear_train[{index}].kind", kind, "a known stage kind")
+
+
+@lru_cache(maxsize=256)
+def _train_cached(stages: tuple) -> tuple[gears.GearTrain, tuple[str, ...]]:
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", TurnkitWarning)
+        built = []
+        for i, s in enumerate(stages):
+            try:
+                built.append(_stage(s, i))
+            except DesignValueError as exc:
+                raise _relabel(exc, f"gear_train[{i}]") from None
+        train = gears.GearTrain(tuple(built)) if built else gears.GearTrain.from_reduction(1)
+    notes = tuple(dict.fromkeys(str(w.message) for w in caught if issubclass(w.category, TurnkitWarning)))
+    return train, notes
+
+
+def build_train(design: ActuatorDesign) -> gears.GearTrain:
+    """The :class:`~turnkit.gears.GearTrain` of a design (a direct drive when it has no stages)."""
+    return _train_cached(tuple(design.gear_train))[0]
+
+
+def build_sensor(design: ActuatorDesign) -> sensor_mod.BridgeSensor:
+    """The :class:`~turnkit.sensor.BridgeSensor` of a design."""
+    s = design.sensor
+    try:
+        return sensor_mod.BridgeSensor(
+            amplitude_mV=s.amplitude_mV, offset_x_mV=s.offset_x_mV, offset_y_mV=s.offset_y_mV,
+            gain_mismatch=s.gain_mismatch, phase_error_deg=s.phase_error_deg, harmonic2=s.harmonic2,
+            harmonic3=s.harmonic3, noise_rms_mV=s.noise_rms_mV, adc_bits=s.adc_bits,
+            adc_full_scale_mV=s.adc_full_scale_mV)
+    except DesignValueError as exc:
+        raise _relabel(exc, "sensor") from None
+
+
+def build_latches(design: ActuatorDesign) -> latch_mod.QuadrantLatches:
+    """The :class:`~turnkit.latches.QuadrantLatches` of a design."""
+    lt = design.latches
+    try:
+        return latch_mod.QuadrantLatches(switch_point_tolerance_deg=lt.switch_point_tolerance_deg,
+                                         hysteresis_deg=lt.hysteresis_deg,
+                                         magnet_misalignment_deg=lt.magnet_misalignment_deg)
+    except DesignValueError as exc:
+        raise _relabel(exc, "latches") from None
+
+
+def build_counter(design: ActuatorDesign) -> CounterSettings:
+    """The :class:`~turnkit.counter.CounterSettings` of a design."""
+    c = design.counter
+    try:
+        return CounterSettings(width_bits=c.bits, signed=c.signed, overflow_policy=c.overflow,
+                               ambiguous_policy=_AMBIGUOUS_POLICY[c.on_ambiguous])
+    except DesignValueError as exc:
+        raise _relabel(exc, "counter") from None
+
+
+def build_schedule(design: ActuatorDesign):
+    """The :class:`~turnkit.schedule.FixedSchedule` or ``AdaptiveSchedule`` of a design."""
+    s = design.schedule
+    period_s = s.poll_period_ms / 1e3
+    common = dict(wake_time_s=s.wake_time_us * 1e-6, settle_time_s=s.settle_time_us * 1e-6,
+                  poll_time_s=s.poll_time_us * 1e-6)
+    try:
+        if s.kind == "adaptive":
+            fast_s = s.fast_poll_period_ms / 1e3
+            return AdaptiveSchedule(poll_period_s=period_s, fast_period_s=fast_s, hold_s=s.hold_time_s,
+                                    jitter_s=s.jitter * fast_s, **common)
+        return FixedSchedule(poll_period_s=period_s, jitter_s=s.jitter * period_s, **common)
+    except DesignValueError as exc:
+        raise _relabel(exc, "schedule") from None
+
+
+def build_battery(design: ActuatorDesign):
+    """The :class:`~turnkit.battery.Pack` of a design, or None on a host supply."""
+    b = design.battery
+    if b is None:
+        return None
+    if b.chemistry is not None:
+        keys = batt.available_cells()
+        if b.chemistry not in keys:
+            import difflib
+
+            near = difflib.get_close_matches(b.chemistry, keys, n=1)
+            raise DesignValueError("battery.chemistry", b.chemistry, "one of " + ", ".join(keys),
+                                   hint=f"did you mean {near[0]!r}?" if near else "")
+        cell = batt.cell(b.chemistry)
+        changes = {k: v for k, v in (("capacity_mAh", b.capacity_mAh), ("nominal_voltage_V", b.nominal_voltage_V),
+                                     ("self_discharge_per_year", b.self_discharge_per_year)) if v is not None}
+        if changes:
+            cell = replace(cell, key=cell.key + "_custom", name=cell.name + " (with your data)", **changes)
+    else:
+        v = b.nominal_voltage_V
+        cell = batt.Cell.custom(
+            "user-defined cell", nominal_voltage_V=v, capacity_mAh=b.capacity_mAh,
+            self_discharge_per_year=b.self_discharge_per_year if b.self_discharge_per_year is not None else 0.02,
+            # Unknown limits: wide enough never to warn; the summary says they were not checked.
+            max_pulse_mA=1e6, max_continuous_mA=1e6, shelf_life_years=100.0, cutoff_voltage_V=0.6 * v)
+    return batt.Pack(cell, series=b.cells_series, parallel=b.cells_parallel)
+
+
+def build_profile(design: ActuatorDesign, supply_voltage_V: float | None = None) -> power.CurrentProfile:
+    """The :class:`~turnkit.power.CurrentProfile` of a design's consumers."""
+    consumers = design.power.consumers
+    if not consumers:
+        raise DesignValueError("power.consumers", [], "at least one consumer with its currents",
+                               hint="add a [[power.consumers]] table with asleep, waking, polling and tracking")
+    built = tuple(
+        power.Consumer(c.name, {"asleep": c.asleep_uA, "waking": c.waking_uA, "polling": c.polling_uA,
+                                "tracking": c.tracking_uA})
+        for c in consumers)
+    return power.CurrentProfile(built, supply_voltage_V=supply_voltage_V or 3.0)
+
+
+def _motor_deg_per_output(train) -> float:
+    return 360.0 / float(train.travel_per_motor_turn)
+
+
+def motor_rpm_for_output_speed(speed: float, train, unit: str) -> float:
+    """Motor speed (rpm) for an output speed in ``unit`` ("mm/s", "rpm" or "deg/s")."""
+    per_turn = float(train.travel_per_motor_turn)  # mm or deg of output per motor turn
+    if unit == "rpm":
+        out_per_s = speed * 360.0 / 60.0
+    else:
+        out_per_s = speed
+    return out_per_s / per_turn * 60.0
+
+
+def output_speed_for_motor_rpm(rpm: float, train) -> tuple[float, str]:
+    """Output speed for a motor speed: (mm/s, "mm/s") or (rpm, "rpm")."""
+    out_per_s = rpm / 60.0 * float(train.travel_per_motor_turn)
+    if train.output_unit == "mm":
+        return out_per_s, "mm/s"
+    return out_per_s * 60.0 / 360.0, "rpm"
+
+
+def _scenario_motor(sc: MotionScenario, train, what: str) -> tuple[float | None, str]:
+    """A scenario quantity at the motor: (value in deg, rpm or deg/s^2 at the motor)."""
+    if what == "speed":
+        if sc.speed_rpm is not None:
+            v = sc.speed_rpm
+            return (v if sc.at == "motor" else motor_rpm_for_output_speed(v, train, "rpm")), "rpm"
+        if sc.speed_mm_per_s is not None:
+            return motor_rpm_for_output_speed(sc.speed_mm_per_s, train, "mm/s"), "rpm"
+        return None, "rpm"
+    attrs = {"distance": ("distance_deg", "distance_mm"), "start": ("start_deg", "start_mm"),
+             "amplitude": ("amplitude_deg", "amplitude_mm"),
+             "acceleration": ("acceleration_deg_per_s2", "acceleration_mm_per_s2")}[what]
+    rot, lin = getattr(sc, attrs[0]), getattr(sc, attrs[1])
+    if rot is not None:
+        return (rot if sc.at == "motor" else rot * _motor_deg_per_output(train)), "deg"
+    if lin is not None:
+        return lin * _motor_deg_per_output(train), "deg"
+    return None, "deg"
+
+
+def build_motion(sc: MotionScenario, train, base_dir: Path | None = None) -> tuple[MotionProfile, float, float]:
+    """The motor-side motion profile of a scenario.
+
+    Returns
+    -------
+    (profile, duration_s, peak_motor_speed_rpm)
+        The profile, the timeline to simulate (s) and the fastest motor speed
+        in it (rpm).
+
+    Notes
+    -----
+    Scenario shapes at the motor shaft (our conventions, documented in
+    docs/design-file.md): a *constant* motion starts at t = 0.37 s so that it
+    is not aligned with the poll grid; a *coast_down* decays exponentially
+    with a time constant of a fifth of its ``duration`` (to under 1 % of the
+    start speed); *bursts* come as a Poisson process at ``bursts_per_day``,
+    each at a speed drawn between half and all of ``speed`` and lasting
+    between half and all of ``distance / speed``, in either direction.
+    """
+    where = f"motion[{sc.name}]"
+    speed_rpm, _ = _scenario_motor(sc, train, "speed")
+    start_deg = _scenario_motor(sc, train, "start")[0] or 0.0
+    try:
+        if sc.kind == "constant":
+            offset = 0.37
+            dur = sc.duration_s
+            prof = ConstantSpeed(speed_rpm=speed_rpm, start_s=offset, duration_s=dur,
+                                 start_angle_deg=start_deg)
+            return prof, dur + 2 * offset, abs(speed_rpm)
+        if sc.kind == "trapezoid":
+            dist_deg = _scenario_motor(sc, train, "distance")[0]
+            acc_deg = _scenario_motor(sc, train, "acceleration")[0]
+            prof = TrapezoidMove(distance_deg=dist_deg, max_speed_rpm=abs(speed_rpm),
+                                 accel_rpm_per_s=acc_deg / 6.0, start_s=0.37, start_angle_deg=start_deg,
+                                 driven=False)
+            dur = sc.duration_s if sc.duration_s is not None else prof.duration_s + 1.0
+            return prof, dur, abs(speed_rpm)
+        if sc.kind == "coast_down":
+            prof = CoastDown(initial_speed_rpm=speed_rpm, time_constant_s=sc.duration_s / 5.0, start_s=0.37,
+                             start_angle_deg=start_deg)
+            return prof, sc.duration_s + 0.74, abs(speed_rpm)
+        if sc.kind == "bursts":
+            dist_deg = _scenario_motor(sc, train, "distance")[0]
+            top = abs(speed_rpm)
+            burst_s = dist_deg / (top * 6.0)
+            prof = BackDriveBursts(rate_per_day=sc.bursts_per_day, speed_min_rpm=0.5 * top, speed_max_rpm=top,
+                                   duration_min_s=0.5 * burst_s, duration_max_s=burst_s,
+                                   horizon_s=sc.duration_s, seed=sc.seed or 0, start_angle_deg=start_deg)
+            return prof, sc.duration_s, top
+        if sc.kind == "vibration":
+            amp_deg = _scenario_motor(sc, train, "amplitude")[0]
+            boundary = start_deg if start_deg else 90.0
+            prof = Vibration(amplitude_deg=amp_deg, frequency_hz=sc.frequency_Hz, start_s=0.37,
+                             duration_s=sc.duration_s, boundary_deg=boundary)
+            peak = 2 * math.pi * sc.frequency_Hz * amp_deg / 6.0
+            return prof, sc.duration_s + 0.74, peak
+        if sc.kind == "trace":
+            path = Path(sc.trace)
+            if not path.is_absolute() and base_dir is not None:
+                path = Path(base_dir) / path
+            prof = load_trace_csv(path, train=train, at_output=(sc.at == "output"), start_angle_deg=start_deg)
+            t = np.asarray(prof.times_s if hasattr(prof, "times_s") else prof.profile.times_s, dtype=float)
+            ang = np.asarray(prof.angle_deg(t), dtype=float)
+            peak = float(np.max(np.abs(np.diff(ang) / np.diff(t)))) / 6.0 if t.size > 1 else 0.0
+            return prof, float(t[-1]) + 0.5, peak
+    except DesignValueError as exc:
+        raise _relabel(exc, where) from None
+    raise DesignValueError(f"{where}.kind", sc.kind, "a known motion kind")
+
+
+# ---------------------------------------------------------------------------
+# cached pieces (the dashboard re-sizes on every slider move)
+# ---------------------------------------------------------------------------
+
+@lru_cache(maxsize=64)
+def _sensor_summary(sensor_design, stages: tuple, calibrated: bool):
+    sensor = _sensor_of(sensor_design)
+    train = _train_cached(stages)[0]
+    return angle_error.error_summary(sensor, calibrated, n=1440, gear_train=train, sweep_samples=360,
+                                     rng=np.random.default_rng(1))
+
+
+def _sensor_of(sensor_design):
+    s = sensor_design
+    try:
+        return sensor_mod.BridgeSensor(
+            amplitude_mV=s.amplitude_mV, offset_x_mV=s.offset_x_mV, offset_y_mV=s.offset_y_mV,
+            gain_mismatch=s.gain_mismatch, phase_error_deg=s.phase_error_deg, harmonic2=s.harmonic2,
+            harmonic3=s.harmonic3, noise_rms_mV=s.noise_rms_mV, adc_bits=s.adc_bits,
+            adc_full_scale_mV=s.adc_full_scale_mV)
+    except DesignValueError as exc:
+        raise _relabel(exc, "sensor") from None
+
+
+@lru_cache(maxsize=512)
+def _simulate_scenario(sc: MotionScenario, stages: tuple, schedule, settings, base_dir: str | None):
+    train = _train_cached(stages)[0]
+    prof, duration, peak = build_motion(sc, train, Path(base_dir) if base_dir else None)
+    result = sim.simulate(prof, schedule, duration, settings)
+    return result, peak
+
+
+# ---------------------------------------------------------------------------
+# the engine
+# ---------------------------------------------------------------------------
+
+def _check(key, label, value, target, unit, comparison, advice="") -> Check:
+    """A requirement check; the advice is kept only when it fails."""
+    c = Check(key, label, float(value), float(target), unit, comparison)
+    return c if c.passed else replace(c, advice=advice)
+
+
+def _counter_bits_needed(quarter_turns: int, signed: bool) -> int:
+    """Smallest width holding 0..quarter_turns (one more bit when signed)."""
+    bits = max(int(quarter_turns).bit_length(), 1)
+    return bits + 1 if signed else bits
+
+
+def _design_text(design: ActuatorDesign) -> str:
+    from .designfile import dump_design
+
+    return dump_design(design)
+
+
+def _equations(keys) -> tuple[EquationText, ...]:
+    from .equations import EQUATIONS
+
+    out = []
+    for k in keys:
+        if k in EQUATIONS:
+            e = EQUATIONS[k]
+            out.append(EquationText(key=k, text=f"{e.title}: {e.text}", latex=e.latex, source=e.source))
+    return tuple(out)
+
+
+def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: bool = True,
+         simulate: bool = True) -> SizingResult:
+    """Size one actuator design.
+
+    Parameters
+    ----------
+    design : ActuatorDesign
+        The validated design (from :func:`turnkit.designfile.load_design` or Python).
+    base_dir : path, optional
+        Folder that relative trace paths are relative to (the design file's folder).
+    curves : bool
+        Also compute the plot data (the dashboard and the HTML summary want it;
+        the command line without ``-o`` does not).
+    simulate : bool
+        Simulate each motion scenario through the counter and its schedule.
+
+    Returns
+    -------
+    SizingResult
+        Values with units, requirement checks with margins, simulated scenarios,
+        curves, equations, warnings and cautions.
+
+    Raises
+    ------
+    DesignValueError
+        When the design cannot be sized (e.g. no power consumers, unknown
+        battery key), naming the field.
+    """
+    stages = tuple(design.gear_train)
+    train, gear_notes = _train_cached(stages)
+    req = design.requirements
+    unit = train.output_unit
+    values: list[Value] = []
+    checks: list[Check] = []
+    warns: list[str] = list(gear_notes)
+    cautions: list[str] = list(GENERAL_CAUTIONS)
+    assumptions: list[tuple[str, str]] = []
+    eq_keys: list[str] = []
+
+    def add(key, label, value, unit_="", group="", equation="", note=""):
+        values.append(Value(key, label, value, unit_, group, equation, note))
+        if equation:
+            eq_keys.append(equation)
+
+    # -- gear train --------------------------------------------------------
+    ratio = train.ratio
+    per_turn = train.travel_per_motor_turn
+    add("ratio", "Overall reduction (motor turns per turn of the last rotary member)", str(ratio), "",
+        "gear train", note=f"exact; {float(ratio):.6g}:1")
+    add("ratio_float", "Overall reduction, decimal", float(ratio), "", "gear train")
+    add("direction", "Output direction for a positive motor turn", "same" if train.direction > 0 else "reversed",
+        "", "gear train")
+    add("travel_per_motor_turn", "Output travel per motor turn", float(per_turn), unit, "gear train",
+        equation="travel_per_motor_turn", note=f"exact: {per_turn}" if isinstance(per_turn, Fraction) else "")
+    add("backlash_at_output", "Backlash at the output (worst-case sum)", train.backlash_at_output(), unit,
+        "gear train")
+    add("efficiency", "Forward efficiency", train.efficiency, "", "gear train")
+    add("backdrive_efficiency", "Back-drive efficiency (0: self-locking)", train.backdrive_efficiency, "",
+        "gear train")
+    add("can_backdrive", "Output can turn the motor", train.can_backdrive, "", "gear train")
+    for line in train.backdrive_report():
+        if "unknown" in line:
+            warns.append(line)
+    if train.can_backdrive:
+        cautions.append(_BACKDRIVE_CAUTION)
+    elif any(isinstance(s, (gears.WormStage, gears.LeadScrew)) for s in train.stages):
+        cautions.append(_CREEP_CAUTION)
+
+    stroke = req.stroke_mm if unit == "mm" else req.stroke_deg
+    other_stroke = req.stroke_deg if unit == "mm" else req.stroke_mm
+    if other_stroke is not None:
+        raise DesignValueError("requirements.stroke", other_stroke,
+                               f"given in {unit} for this {'linear' if unit == 'mm' else 'rotary'} output",
+                               unit="deg" if unit == "mm" else "mm")
+    settings = build_counter(design)
+    quarter_turns_stroke = None
+    if stroke is not None:
+        motor_turns = train.motor_turns_for_stroke(stroke)
+        quarter_turns_stroke = math.ceil(4 * float(motor_turns) - 1e-9)
+        add("stroke_motor_turns", "Motor turns over the stroke", float(motor_turns), "turn", "gear train")
+        add("stroke_quarter_turns", "Quarter-turns counted over the stroke", quarter_turns_stroke, "", "counter",
+            equation="quarter_turns_per_stroke")
+        bits = _counter_bits_needed(quarter_turns_stroke, settings.signed)
+        add("counter_bits_needed", "Counter width needed for the stroke", bits, "bit", "counter",
+            equation="counter_bits")
+    # Homed at zero at one end of the stroke: the travel up to the largest count.
+    counter_range = settings.max_count / 4 * float(per_turn)
+    add("counter_bits", "Counter width", settings.width_bits, "bit", "counter")
+    add("counter_range", "Output travel the counter can hold", float(counter_range), unit, "counter",
+        note=f"{settings.max_count - settings.min_count + 1} quarter-turns, "
+             f"{'signed' if settings.signed else 'unsigned'}, overflow: {settings.overflow_policy.value}")
+    if stroke is not None:
+        checks.append(_check("counter_range", "Counter holds the whole stroke", float(counter_range), float(stroke),
+                            unit, ">=", advice=f"widen the counter to at least "
+                                               f"{_counter_bits_needed(quarter_turns_stroke, settings.signed)} bits"))
+
+    # -- sensor and latches -------------------------------------------------
+    summary = _sensor_summary(design.sensor, stages, bool(design.sensor.calibrated))
+    motor_peak = summary.peak_error_deg
+    add("sensor_peak_error_deg", "Sensor angle error at the motor, peak"
+        + (" (after calibration)" if design.sensor.calibrated else " (uncalibrated)"), motor_peak, "deg", "sensor")
+    add("sensor_rms_error_deg", "Sensor angle error at the motor, RMS", summary.rms_error_deg, "deg", "sensor")
+    add("sensor_noise_deg", "Sensor angle noise at the motor (1 sigma)", summary.noise_sigma_deg, "deg", "sensor")
+    add("sensor_resolution_deg", "Sensor effective resolution at the motor", summary.resolution_deg, "deg",
+        "sensor")
+    add("sensor_effective_bits", "Sensor effective resolution", summary.effective_bits, "bit", "sensor")
+    resolution_out = train.output_resolution(summary.resolution_deg)
+    add("output_resolution", "Output resolution", resolution_out, unit, "sensor", equation="output_resolution")
+    sensor_err_out = train.output_resolution(motor_peak)
+    accuracy_out = sensor_err_out + train.backlash_at_output()
+    add("output_accuracy", "Output accuracy (sensor peak error + backlash)", accuracy_out, unit, "sensor",
+        note=f"sensor {sensor_err_out:.3g} {unit} + backlash {train.backlash_at_output():.3g} {unit}")
+    target_res = req.output_resolution_mm if unit == "mm" else req.output_resolution_deg
+    if target_res is not None:
+        need = float(ratio) * resolution_out / target_res
+        checks.append(_check("output_resolution", "Output resolution is fine enough", resolution_out, target_res,
+                            unit, "<=", advice=f"raise the reduction to at least {need:.4g}:1, or use a "
+                                               "quieter sensor or a finer ADC"))
+    target_acc = req.output_accuracy_mm if unit == "mm" else req.output_accuracy_deg
+    if target_acc is not None:
+        parts = "backlash" if train.backlash_at_output() > sensor_err_out else "sensor error"
+        checks.append(_check("output_accuracy", "Output accuracy is within the allowed error", accuracy_out,
+                            target_acc, unit, "<=",
+                            advice=f"the larger part is the {parts}: "
+                                   + ("reduce backlash (anti-backlash nut, preloaded stages)" if parts == "backlash"
+                                      else "calibrate the sensor or raise the reduction")))
+
+    margin = latch_mod.half_turn_margin(build_latches(design), fine_error_deg=motor_peak)
+    add("half_turn_margin_deg", "Half-turn margin of the quadrant latches", margin.margin_deg, "deg", "sensor",
+        note="45 deg less latch tolerance, half the hysteresis, misalignment and sensor error")
+    checks.append(_check("half_turn_margin", "Quadrant latches pick the right half-turn everywhere",
+                        margin.margin_deg, 0.0, "deg", ">=",
+                        advice="tighten the latch switch-point tolerance or the magnet alignment"))
+    if not margin.ok:
+        zones = ", ".join(f"{a:.0f}-{b:.0f} deg" for a, b in margin.fail_zones_deg[:4])
+        warns.append(f"The half-turn decision can fail near {zones} of each motor turn.")
+
+    # -- schedule and speed bounds -------------------------------------------
+    schedule = build_schedule(design)
+    guaranteed_rpm = bounds.schedule_speed_limit_rpm(schedule)
+    silent_rpm = bounds.silent_error_speed_rpm(bounds.worst_interval_s(schedule))
+    add("poll_period_ms", "Poll period while asleep", design.schedule.poll_period_ms, "ms", "schedule")
+    add("trackable_motor_speed_rpm", "Fastest motor speed always counted right while asleep", guaranteed_rpm,
+        "rpm", "schedule", equation="max_trackable_speed")
+    out_speed, out_speed_unit = output_speed_for_motor_rpm(guaranteed_rpm, train)
+    add("trackable_output_speed", "Fastest output speed always counted right while asleep", out_speed,
+        out_speed_unit, "schedule")
+    add("silent_error_motor_speed_rpm", "Motor speed above which miscounts can be silent", silent_rpm, "rpm",
+        "schedule", equation="silent_error_onset_speed")
+    awake_s = schedule.wake_time_s + schedule.settle_time_s + schedule.poll_time_s
+    add("duty_cycle_percent", "Duty cycle (awake share while idle)", 100 * awake_s / schedule.poll_period_s, "%",
+        "schedule", equation="duty_cycle")
+    req_speed = (req.backdrive_speed_mm_per_s if unit == "mm" else req.backdrive_speed_rpm)
+    wrong_speed = req.backdrive_speed_rpm if unit == "mm" else req.backdrive_speed_mm_per_s
+    if wrong_speed is not None:
+        raise DesignValueError("requirements.backdrive_speed", wrong_speed,
+                               "given in mm/s for a linear output, rpm for a rotary one",
+                               unit="rpm" if unit == "mm" else "mm/s")
+    max_period_s = None
+    required_rpm = None
+    if req_speed is not None:
+        required_rpm = motor_rpm_for_output_speed(req_speed, train, "mm/s" if unit == "mm" else "rpm")
+        max_period_s = bounds.max_poll_period_s(required_rpm)
+        add("backdrive_motor_speed_rpm", "Motor speed at the required back-drive speed", required_rpm, "rpm",
+            "schedule", equation="backdrive_motor_speed")
+        add("max_poll_period_ms", "Longest poll period for the required back-drive speed", max_period_s * 1e3,
+            "ms", "schedule", equation="max_poll_period")
+        checks.append(_check("backdrive_speed", "Counter follows the required back-drive speed while asleep",
+                            out_speed, req_speed, out_speed_unit, ">=",
+                            advice=f"poll at least every {max_period_s * 1e3:.4g} ms (with jitter included), "
+                                   "or lower the reduction"))
+
+    # -- power and battery ---------------------------------------------------
+    pack = build_battery(design)
+    profile = build_profile(design, pack.nominal_voltage_V if pack is not None else None)
+    motion_events = sum(sc.bursts_per_day or 0.0 for sc in design.motion if sc.kind == "bursts")
+    motion_fraction = 0.0
+    for sc in design.motion:
+        if sc.kind == "bursts":
+            sp = abs(_scenario_motor(sc, train, "speed")[0] or 0.0)
+            dist = _scenario_motor(sc, train, "distance")[0] or 0.0
+            if sp > 0:
+                motion_fraction += sc.bursts_per_day * 0.75 * dist / (sp * 6.0) / 86400.0
+    sched_kw = dict(poll_period_s=schedule.poll_period_s, wake_time_s=schedule.wake_time_s,
+                    settle_time_s=schedule.settle_time_s, poll_time_s=schedule.poll_time_s,
+                    motion_fraction=min(motion_fraction, 0.5), motion_events_per_day=motion_events)
+    if isinstance(schedule, AdaptiveSchedule):
+        sched_kw.update(fast_period_s=schedule.fast_period_s, hold_s=schedule.hold_s)
+    budget = power.budget_from_schedule(profile, **sched_kw)
+    add("average_current_uA", "Average current", budget.average_current_uA, "uA", "power",
+        equation="average_current")
+    add("charge_per_year_mAh", "Charge drawn per year", budget.charge_per_year_mAh, "mAh", "power")
+    add("charge_per_wake_uC", "Charge per wake-up", budget.charge_per_wake_uC, "uC", "power")
+    add("peak_current_mA", "Peak current", budget.peak_current_mA, "mA", "power")
+    add("dominant_consumer", "Largest consumer", budget.dominant_consumer, "", "power",
+        note=f"{budget.by_consumer()[budget.dominant_consumer]:.3g} uA of the average")
+    add("dominant_state", "State that costs the most charge", budget.dominant_state, "", "power")
+    if motion_events:
+        assumptions.append((f"Back-drive bursts: {motion_events:g} a day (from the motion scenarios) in the "
+                            "average current", "design file"))
+    temperature_C = design.battery.temperature_degC if design.battery is not None else 20.0
+    if req.service_temperature_degC is not None:
+        temperature_C = req.service_temperature_degC
+    life = None
+    if pack is not None:
+        est = batt.estimate_life(pack, budget.average_current_uA, temperature_C=temperature_C,
+                                 peak_current_mA=budget.peak_current_mA)
+        life = est.life_years
+        add("battery", "Battery", f"{pack.name}", "", "battery")
+        add("battery_capacity_mAh", "Battery nominal capacity", pack.capacity_mAh, "mAh", "battery")
+        add("usable_capacity_mAh", "Usable capacity after temperature derating", est.usable_capacity_mAh, "mAh",
+            "battery", equation="usable_capacity")
+        add("battery_life_years", "Battery life", life, "years", "battery", equation="battery_life")
+        add("self_discharge_percent", "Share of the capacity lost to self-discharge",
+            100 * est.lost_to_self_discharge_mAh / est.usable_capacity_mAh if est.usable_capacity_mAh else 0.0, "%",
+            "battery")
+        warns.extend(est.warnings)
+        cautions.extend(c for c in est.cautions if c not in cautions)
+        assumptions.append((f"Battery data for {pack.cell.name}: typical values at low drain", "; ".join(
+            dict.fromkeys(src for _, src in pack.cell.sources)) or "user data"))
+        assumptions.append((f"Battery temperature {temperature_C:g} degC, linear self-discharge, "
+                            "8766 h per year", "(common practice)"))
+        if req.battery_life_years is not None:
+            advice = ""
+            try:
+                need_cap = float(batt.capacity_needed_mAh(budget.average_current_uA, req.battery_life_years, pack,
+                                                          temperature_C=temperature_C))
+                advice = f"a battery of at least {need_cap:.4g} mAh, or a lower average current"
+                add("capacity_needed_mAh", "Capacity needed for the required life", need_cap, "mAh", "battery",
+                    equation="capacity_for_life")
+            except DesignValueError:
+                advice = (f"this chemistry cannot last {req.battery_life_years:g} years against its own "
+                          "self-discharge: choose another chemistry")
+            checks.append(_check("battery_life", "Battery lasts the required life", life, req.battery_life_years,
+                                "years", ">=", advice=advice))
+    host = design.power.host_supply
+    budget_uA = req.quiescent_budget_uA
+    if budget_uA is None and host is not None:
+        budget_uA = host.quiescent_budget_uA
+    if budget_uA is not None:
+        checks.append(_check("quiescent_budget", "Average current within the quiescent budget",
+                            budget.average_current_uA, budget_uA, "uA", "<=",
+                            advice="poll less often or cut the sleep current"))
+
+    # -- conflicts between speed and life --------------------------------------
+    if max_period_s is not None and life is not None and req.battery_life_years is not None:
+        life_at_limit = float(batt.life_years(
+            pack, power.average_current_uA(profile, **{**sched_kw, "poll_period_s": max_period_s}),
+            temperature_C=temperature_C, warn=False))
+        add("life_at_max_poll_period_years", "Battery life at the longest allowed poll period", life_at_limit,
+            "years", "battery")
+        if life_at_limit < req.battery_life_years:
+            warns.append(
+                f"No poll period meets both requirements: polling every {max_period_s * 1e3:.4g} ms (the "
+                f"longest that follows {req_speed:g} {out_speed_unit}) lasts only {life_at_limit:.3g} years "
+                f"against {req.battery_life_years:g} required. Relax the back-drive speed, accept a shorter "
+                "life, use a larger battery, cut the sleep current, or poll adaptively.")
+
+    # -- motion scenarios ---------------------------------------------------------
+    scenarios: list[Scenario] = []
+    base = str(Path(base_dir).resolve()) if base_dir is not None else None
+    if simulate:
+        for sc in design.motion:
+            result, peak = _simulate_scenario(sc, stages, schedule, settings, base)
+            _, err = result.output_error(train)
+            max_err = float(np.max(np.abs(err))) if np.size(err) else 0.0
+            note = ""
+            if result.silent_error_count:
+                note = "silent miscounts: the count is wrong with no error flagged"
+            elif result.ambiguous_count:
+                note = "ambiguous steps flagged: position no longer trusted, re-homing needed"
+            elif peak > guaranteed_rpm:
+                note = "faster than the guaranteed bound at times, but counted right in this run"
+            scenarios.append(Scenario(
+                name=sc.name, kind=sc.kind, duration_s=result.duration_s, peak_motor_speed_rpm=peak,
+                polls=result.poll_count, final_count_error_qt=result.final_count_error,
+                ambiguous_count=result.ambiguous_count, silent_error_count=result.silent_error_count,
+                overflow_count=result.overflow_count, max_output_error=max_err, output_unit=unit, note=note))
+
+    # -- curves ----------------------------------------------------------------
+    curve_list: list[Curve] = []
+    if curves:
+        curve_list.extend(_curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
+                                  max_period_s, required_rpm, req_speed, out_speed_unit, temperature_C,
+                                  guaranteed_rpm, resolution_out, base))
+
+    eq_keys.extend(["max_trackable_speed", "max_poll_period"])
+    text = _design_text(design)
+    return SizingResult(
+        design_name=design.name,
+        design_hash=hashlib.sha256(text.encode()).hexdigest(),
+        turnkit_version=__version__,
+        output_unit=unit,
+        values=tuple(values),
+        checks=tuple(checks),
+        scenarios=tuple(scenarios),
+        curves=tuple(curve_list),
+        equations=_equations(dict.fromkeys(eq_keys)),
+        warnings=tuple(dict.fromkeys(warns)),
+        cautions=tuple(dict.fromkeys(cautions)),
+        assumptions=tuple(assumptions) + (
+            ("Guaranteed counting: less than a quarter-turn of the motor between two polls, any phase",
+             "2-bit Gray code, one bit changes per step: F. Gray, US patent 2,632,058 (1953)"),
+            ("Gear ratios are exact fractions of tooth counts; lengths are taken at their decimal value",
+             "Shigley's Mechanical Engineering Design, ch. 13"),
+        ),
+        inputs=tomllib.loads(text),
+    )
+
+
+def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw, max_period_s, required_rpm,
+            req_speed, speed_unit, temperature_C, guaranteed_rpm, resolution_out, base) -> list[Curve]:
+    unit = train.output_unit
+    out: list[Curve] = []
+    period_ms = schedule.poll_period_s * 1e3
+    awake_s = schedule.wake_time_s + schedule.settle_time_s + schedule.poll_time_s
+    lo_s = max(awake_s * 1.5, min(schedule.poll_period_s, max_period_s or schedule.poll_period_s) / 30.0)
+    hi_s = max(schedule.poll_period_s, max_period_s or schedule.poll_period_s) * 30.0
+    kw = {k: v for k, v in sched_kw.items() if k != "poll_period_s"}
+    if isinstance(schedule, AdaptiveSchedule):
+        lo_s = max(lo_s, schedule.fast_period_s * 1.0001)
+    # (a) life (or current) versus poll period
+    if pack is not None:
+        lc = power.life_vs_poll_period(profile, pack, poll_period_min_s=lo_s, poll_period_max_s=hi_s, points=120,
+                                       max_allowed_poll_period_s=max_period_s, temperature_C=temperature_C, **kw)
+        current_life = float(batt.life_years(pack, power.average_current_uA(profile, **sched_kw),
+                                             temperature_C=temperature_C, warn=False))
+        series = (Series("battery life", lc.poll_period_s * 1e3, lc.life_years),)
+        marker_y, key, title, ylab, yunit = current_life, "life_vs_poll_period", "Battery life against poll period", \
+            "battery life", "years"
+        hlines = ()
+        if design.requirements.battery_life_years is not None:
+            hlines = (Series("required life", np.array([lo_s * 1e3, hi_s * 1e3]),
+                             np.full(2, design.requirements.battery_life_years), style="dashed"),)
+        series = series + hlines
+    else:
+        periods = np.geomspace(lo_s, hi_s, 120)
+        cur = power.average_current_uA(profile, **{**kw, "poll_period_s": periods})
+        series = (Series("average current", periods * 1e3, np.asarray(cur, dtype=float)),)
+        marker_y = float(power.average_current_uA(profile, **sched_kw))
+        key, title, ylab, yunit = "current_vs_poll_period", "Average current against poll period", \
+            "average current", "uA"
+    bands, vlines = (), ()
+    if max_period_s is not None:
+        vlines = (Marker("longest allowed poll period", max_period_s * 1e3, 0.0),)
+        if max_period_s < hi_s:
+            bands = (Band("misses back-drive", max_period_s * 1e3, hi_s * 1e3),)
+    out.append(Curve(key, title, "poll period", "ms", ylab, yunit, series,
+                     markers=(Marker("this design", period_ms, marker_y),), bands=bands, vlines=vlines,
+                     log_x=True, log_y=True,
+                     note=(f"longest poll period for the required back-drive speed: {max_period_s * 1e3:.4g} ms"
+                           if max_period_s is not None else "no back-drive speed required")))
+
+    # (b) a simulated back-drive event at the required speed (or the fastest scenario's)
+    speed_rpm = required_rpm
+    if speed_rpm is None and design.motion:
+        speed_rpm = max((abs(_scenario_motor(sc, train, "speed")[0] or 0.0) for sc in design.motion), default=None)
+    if not speed_rpm:
+        speed_rpm = guaranteed_rpm
+    polls_wanted = 24
+    duration = polls_wanted * schedule.poll_period_s
+    move_s = max(duration - 2.5 * schedule.poll_period_s, schedule.poll_period_s)
+    prof = ConstantSpeed(speed_rpm=speed_rpm, start_s=1.3 * schedule.poll_period_s, duration_s=move_s)
+    res = sim.simulate(prof, schedule, duration, settings,
+                       trace_window_s=(0.0, duration), trace_max_polls=200)
+    t_ms = res.trace_time_s * 1e3
+    true_q = res.trace_angle_deg / 90.0
+    amb_t = np.asarray(res.ambiguous_events.times_s, dtype=float) if res.ambiguous_count else np.array([])
+    amb_y = np.interp(amb_t, res.trace_poll_times_s, res.trace_decoded_count) if amb_t.size else np.array([])
+    event_series = (
+        Series("true position", t_ms, true_q),
+        Series("polls", res.trace_poll_times_s * 1e3, res.trace_true_count.astype(float), style="points"),
+        Series("counted", res.trace_poll_times_s * 1e3, res.trace_decoded_count.astype(float), style="step"),
+        Series("ambiguous step", amb_t * 1e3, amb_y, style="points"),
+    )
+    out.append(Curve("backdrive_event", f"Back-drive at {speed_rpm:.4g} rpm (motor) while asleep", "time", "ms",
+                     "motor position", "quarter-turns", event_series,
+                     note=(f"{res.ambiguous_count} ambiguous, {res.silent_error_count} silent; final count error "
+                           f"{res.final_count_error} quarter-turns")))
+    et, ee = res.trace_output_error(train)
+    out.append(Curve("backdrive_error", "Output position error during the back-drive event", "time", "ms",
+                     "position error", unit, (Series("count error at the output", et * 1e3, ee, style="step"),),
+                     note=f"one quarter-turn = {float(train.travel_per_motor_turn) / 4:.4g} {unit} at the output"))
+
+    # (c) resolution and back-drive motor speed against reduction
+    ratio = float(train.ratio)
+    reductions = np.geomspace(ratio / 10.0, ratio * 10.0, 100)
+    last = train.stages[-1]
+    if train.is_linear:
+        per_turn = float(last.travel_per_input_turn_mm) / reductions
+    else:
+        per_turn = 360.0 / reductions
+    res_curve = summary.resolution_deg / 360.0 * per_turn
+    req_res = design.requirements.output_resolution_mm if unit == "mm" else design.requirements.output_resolution_deg
+    res_series = [Series("output resolution", reductions, res_curve)]
+    if req_res is not None:
+        res_series.append(Series("required resolution", reductions[[0, -1]], np.full(2, req_res), style="dashed"))
+    out.append(Curve("resolution_vs_reduction", "Output resolution against reduction", "reduction", ":1",
+                     "output resolution", unit, tuple(res_series),
+                     markers=(Marker("this design", ratio, resolution_out),), log_x=True, log_y=True))
+    if req_speed is not None:
+        out_per_s = req_speed if unit == "mm" else req_speed * 6.0
+        motor_rpm = out_per_s / per_turn * 60.0
+        sp_series = (Series("motor speed under back-drive", reductions, motor_rpm),
+                     Series("fastest counted speed", reductions[[0, -1]], np.full(2, guaranteed_rpm), style="dashed"))
+        out.append(Curve("backdrive_speed_vs_reduction", "Motor speed under back-drive against reduction",
+                         "reduction", ":1", "motor speed", "rpm", sp_series,
+                         markers=(Marker("this design", ratio, required_rpm),), log_x=True, log_y=True,
+                         note="more reduction: finer resolution, but the motor spins faster under back-drive"))
+
+    # (d) current over one poll cycle
+    totals = profile.state_totals_uA()
+    t_wake = schedule.wake_time_s + schedule.settle_time_s
+    T = schedule.poll_period_s
+    pts_t = np.array([0.0, 0.0, t_wake, t_wake, t_wake + schedule.poll_time_s, t_wake + schedule.poll_time_s, T])
+    pts_i = np.array([totals["asleep"], totals["waking"], totals["waking"], totals["polling"], totals["polling"],
+                      totals["asleep"], totals["asleep"]])
+    cyc_t = np.concatenate([pts_t, pts_t[1:] + T]) * 1e3
+    cyc_i = np.concatenate([pts_i, pts_i[1:]])
+    avg = float(power.average_current_uA(profile, **sched_kw))
+    out.append(Curve("current_profile", "Current over two poll cycles", "time", "ms", "current", "uA",
+                     (Series("supply current", cyc_t, cyc_i),
+                      Series("average", cyc_t[[0, -1]], np.full(2, avg), style="dashed")),
+                     log_y=True,
+                     note=f"duty cycle {awake_s / T * 100:.3g} %, average {avg:.4g} uA"))
+
+    # (e) sensor angle error over a turn
+    out.append(Curve("sensor_error", "Sensor angle error over one motor turn", "motor angle", "deg", "angle error",
+                     "deg", (Series("before calibration", summary.angle_deg, summary.error_before_deg),
+                             Series("after calibration", summary.angle_deg, summary.error_after_deg)),
+                     note=f"peak {np.max(np.abs(summary.error_before_deg)):.3g} deg before, "
+                          f"{np.max(np.abs(summary.error_after_deg)):.3g} deg after calibration"))
+    return out
