@@ -190,7 +190,7 @@ def test_custom_battery_needs_capacity_and_voltage():
         d.BatteryDesign(capacity_mAh=3000.0)
     cell = d.BatteryDesign(capacity_mAh=3000.0, nominal_voltage_V=1.5, self_discharge_per_year=0.01)
     assert cell.chemistry is None
-    assert d.BatteryDesign(chemistry="lithium_iron_disulfide_aa", capacity_mAh=2500.0).capacity_mAh == 2500.0
+    assert d.BatteryDesign(chemistry="li_fes2_aa", capacity_mAh=2500.0).capacity_mAh == 2500.0
 
 
 def test_battery_chemistry_must_be_an_identifier():

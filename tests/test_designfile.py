@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import dataclasses
 import os
+import tempfile
 import tomllib
 
 import jsonschema
@@ -74,7 +75,7 @@ tracking = "2 mA"
 quiescent_budget = "40 uA"
 
 [battery]
-chemistry = "lithium_iron_disulfide_aa"
+chemistry = "li_fes2_aa"
 cells_series = 2
 temperature = "-10 degC"
 
@@ -336,21 +337,266 @@ def test_save_writes_and_refuses_to_overwrite(tmp_path):
     assert path.read_text() == before
     save_design(changed, path, overwrite=True)
     assert loads_design(path.read_text()).name == "Gate valve B"
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["valve.toml"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["valve.toml", "valve.toml.bak"]
+    assert (tmp_path / "valve.toml.bak").read_text() == before
 
 
 def test_failed_save_leaves_the_old_file_and_no_temporary(tmp_path, monkeypatch):
     path = tmp_path / "valve.toml"
-    path.write_text("old contents")
+    path.write_text(BASE + "# old contents\n")
 
     def broken_replace(src, dst):
         raise OSError("disk full")
 
     monkeypatch.setattr(os, "replace", broken_replace)
     with pytest.raises(OSError, match="disk full"):
-        save_design(loads_design(BASE), path, overwrite=True)
-    assert path.read_text() == "old contents"
+        save_design(loads_design('format_version = 1\nname = "y"\n'), path, overwrite=True)
+    assert path.read_text() == BASE + "# old contents\n"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["valve.toml"]
+
+
+# --- saving over a hand-written file ---------------------------------------------------
+
+COMMENTED = """\
+# Gate valve, tuned by hand.
+format_version = 1
+name = "Irrigation gate valve"   # shown in reports
+
+# --- gears, motor side first ---
+[[gear_train]]          # spur pair
+kind = "external"
+teeth_driver = 12       # pinion
+teeth_driven = 48
+backlash = "0.5 deg"
+
+# the screw
+[[gear_train]]
+kind    = "lead_screw"
+pitch   = "0.002 m"     # 2 mm, written in metres on purpose
+starts  = 2
+
+[schedule]
+kind = 'adaptive'
+poll_period = "20 ms"   # slow poll while idle
+fast_poll_period = "2000 us"
+
+# motions while asleep
+[[motion]]
+name = "hand-wheel spin"
+kind = "constant"
+at = "motor"
+speed = "600 rpm"
+duration = "20 s"
+
+# gate dropping under its own weight
+[[motion]]
+name = "gate drop"
+kind = "trapezoid"
+distance = "20 mm"
+speed = "5 mm/s"
+acceleration = "50 mm/s^2"
+
+# wind on the gate
+[[motion]]
+name = "wind"
+kind = "vibration"
+amplitude = "0.2 mm"
+frequency = "15 Hz"
+duration = "10 s"
+
+# what it must do
+[requirements]
+stroke = "250 mm"
+battery_life = "5 years"
+"""
+
+
+def _commented_file(tmp_path):
+    path = tmp_path / "valve.toml"
+    path.write_bytes(COMMENTED.encode())
+    return path, loads_design(COMMENTED)
+
+
+def _headers_with_comment_above(text: str) -> list[tuple[str, str]]:
+    lines = text.splitlines()
+    return [(lines[i - 1], lines[i]) for i in range(1, len(lines)) if lines[i].startswith("[")]
+
+
+def test_saving_over_a_commented_file_rewrites_only_the_changed_values(tmp_path):
+    path, design = _commented_file(tmp_path)
+    tuned = dataclasses.replace(
+        design,
+        schedule=dataclasses.replace(design.schedule, poll_period_ms=5.0),
+        gear_train=(dataclasses.replace(design.gear_train[0], teeth_driver=13), design.gear_train[1]),
+    )
+    save_design(tuned, path, overwrite=True)
+    old_lines = COMMENTED.encode().splitlines(keepends=True)
+    new_lines = path.read_bytes().splitlines(keepends=True)
+    assert len(new_lines) == len(old_lines)
+    changed = {i: (a, b) for i, (a, b) in enumerate(zip(old_lines, new_lines)) if a != b}
+    assert [pair[1] for pair in changed.values()] == [
+        b"teeth_driver = 13       # pinion\n",
+        b'poll_period = "5 ms"   # slow poll while idle\n',
+    ]
+    # Equal quantities written another way are left as the user wrote them.
+    assert b'pitch   = "0.002 m"     # 2 mm, written in metres on purpose\n' in new_lines
+    assert b'fast_poll_period = "2000 us"\n' in new_lines and b"kind = 'adaptive'\n" in new_lines
+    assert load_design(path) == tuned
+    assert (tmp_path / "valve.toml.bak").read_bytes() == COMMENTED.encode()
+
+
+def test_saving_an_unchanged_design_leaves_the_file_and_makes_no_backup(tmp_path):
+    path, design = _commented_file(tmp_path)
+    save_design(design, path, overwrite=True)
+    assert path.read_bytes() == COMMENTED.encode()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["valve.toml"]
+
+
+def test_backup_keeps_one_level_the_text_before_the_last_save(tmp_path):
+    path, design = _commented_file(tmp_path)
+    first = dataclasses.replace(design, name="Gate valve B")
+    save_design(first, path, overwrite=True)
+    after_first = path.read_bytes()
+    save_design(dataclasses.replace(first, name="Gate valve C"), path, overwrite=True)
+    assert (tmp_path / "valve.toml.bak").read_bytes() == after_first
+    assert b'name = "Gate valve C"   # shown in reports\n' in path.read_bytes()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["valve.toml", "valve.toml.bak"]
+
+
+@pytest.mark.parametrize("removed", [0, 1, 2])
+def test_removing_a_motion_scenario_removes_its_table_and_keeps_the_others_comments(tmp_path, removed):
+    path, design = _commented_file(tmp_path)
+    kept = tuple(m for i, m in enumerate(design.motion) if i != removed)
+    save_design(dataclasses.replace(design, motion=kept), path, overwrite=True)
+    text = path.read_text()
+    assert loads_design(text) == dataclasses.replace(design, motion=kept)
+    assert text.count("[[motion]]") == 2
+    name = design.motion[removed].name
+    assert f'name = "{name}"' not in text
+    above = dict((header_comment, header) for header_comment, header in _headers_with_comment_above(text))
+    # Comments directly above a remaining scenario's header stay with it; the one above the removed
+    # scenario goes with it, except above the first table, which may describe the whole array.
+    comments = {"hand-wheel spin": "# motions while asleep", "gate drop": "# gate dropping under its own weight",
+                "wind": "# wind on the gate"}
+    for scenario in kept:
+        assert comments[scenario.name] in text
+    if removed:
+        assert comments[name] not in text
+    assert above.get("# what it must do") == "[requirements]"
+    assert "# --- gears, motor side first ---\n[[gear_train]]          # spur pair\n" in text
+
+
+def test_removing_every_motion_scenario_removes_the_array(tmp_path):
+    path, design = _commented_file(tmp_path)
+    save_design(dataclasses.replace(design, motion=()), path, overwrite=True)
+    text = path.read_text()
+    assert "[[motion]]" not in text and "# wind on the gate" not in text
+    assert "# what it must do\n[requirements]\n" in text
+    assert loads_design(text).motion == ()
+
+
+def test_removing_a_gear_stage_keeps_the_next_stage_and_its_comment(tmp_path):
+    path, design = _commented_file(tmp_path)
+    direct = dataclasses.replace(design, gear_train=design.gear_train[1:])
+    save_design(direct, path, overwrite=True)
+    text = path.read_text()
+    assert loads_design(text) == direct
+    assert "# pinion" not in text and text.count("[[gear_train]]") == 1
+    assert '# the screw\n[[gear_train]]\nkind    = "lead_screw"\npitch   = "0.002 m"' in text
+
+
+def test_reordered_scenarios_move_with_their_comments(tmp_path):
+    path, design = _commented_file(tmp_path)
+    spin, drop, wind = design.motion
+    reordered = dataclasses.replace(design, motion=(wind, spin, drop))
+    save_design(reordered, path, overwrite=True)
+    text = path.read_text()
+    assert loads_design(text) == reordered
+    assert '# wind on the gate\n[[motion]]\nname = "wind"\n' in text
+    assert '# gate dropping under its own weight\n[[motion]]\nname = "gate drop"\n' in text
+
+
+def test_added_and_cleared_entries(tmp_path):
+    path, design = _commented_file(tmp_path)
+    changed = dataclasses.replace(
+        design,
+        description="second prototype",
+        requirements=dataclasses.replace(design.requirements, stroke_mm=None, stroke_deg=90.0),
+        battery=d.BatteryDesign(chemistry="lithium_iron_disulfide_aa", cells_series=2),
+        motion=design.motion + (d.MotionScenario(name="shock", kind="coast_down", speed_rpm=30.0,
+                                                 duration_s=0.5),),
+    )
+    save_design(changed, path, overwrite=True)
+    text = path.read_text()
+    assert loads_design(text) == changed
+    # New top-level keys go after their neighbour, not after the comment above the first table.
+    assert 'name = "Irrigation gate valve"   # shown in reports\ndescription = "second prototype"\n' in text
+    assert '[requirements]\nstroke = "90 deg"\nbattery_life = "5 years"\n' in text
+    assert '[[motion]]\nname = "shock"\nkind = "coast_down"\nspeed = "30 rpm"\nduration = "0.5 s"\n' in text
+    # Only what differs from the defaults is added: cells_parallel and temperature are not written.
+    assert '[battery]\nchemistry = "lithium_iron_disulfide_aa"\ncells_series = 2\n' in text
+    assert "cells_parallel" not in text and "temperature" not in text
+    assert all(line in text for line in COMMENTED.splitlines() if line.startswith("#"))
+
+
+def test_saving_keeps_windows_line_endings(tmp_path):
+    path = tmp_path / "valve.toml"
+    original = COMMENTED.replace("\n", "\r\n").encode()
+    path.write_bytes(original)
+    design = loads_design(COMMENTED)
+    changed = dataclasses.replace(design, schedule=dataclasses.replace(design.schedule, hold_time_s=4.0))
+    save_design(changed, path, overwrite=True)
+    data = path.read_bytes()
+    assert b"\r\n" in data and b"\n" not in data.replace(b"\r\n", b"")
+    assert b'fast_poll_period = "2000 us"\r\nhold_time = "4 s"\r\n' in data
+    assert loads_design(data.decode()) == changed
+
+
+@pytest.mark.parametrize(
+    ("contents", "reason"),
+    [
+        ("old contents\n", "TOML syntax error"),
+        (BASE + "[sensor]\nzebra = 1\n", "unknown key 'zebra'"),
+        ("[tool.other]\nx = 1\n", "unknown key 'tool'"),
+    ],
+)
+def test_an_existing_file_turnkit_cannot_read_is_not_overwritten(tmp_path, contents, reason):
+    path = tmp_path / "valve.toml"
+    path.write_text(contents)
+    with pytest.raises(DesignFileError, match="nothing was written") as info:
+        save_design(loads_design(BASE), path, overwrite=True)
+    assert reason in str(info.value) and str(path) in str(info.value)
+    assert path.read_text() == contents
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["valve.toml"]
+
+
+def test_saving_keeps_the_file_permissions(tmp_path):
+    path, design = _commented_file(tmp_path)
+    os.chmod(path, 0o640)
+    save_design(dataclasses.replace(design, name="Gate valve B"), path, overwrite=True)
+    assert path.stat().st_mode & 0o777 == 0o640
+    assert (tmp_path / "valve.toml.bak").stat().st_mode & 0o777 == 0o640
+
+
+def test_written_formats_tomlkit_edits_still_read_back(tmp_path):
+    path = tmp_path / "valve.toml"
+    original = ('format_version = 1\nname = "x"\nsensor = { amplitude = "80 mV", adc_bits = 10 }  # inline\n'
+                'gear_train = [{ kind = "external", teeth_driver = 12, teeth_driven = 40 }, '
+                '{ kind = "lead_screw", pitch = "2 mm" }]\npower.cutoff_voltage = "2 V"\n\n'
+                '[power.host_supply]\nquiescent_budget = "40 uA"\n')
+    path.write_text(original)
+    design = loads_design(original)
+    changed = dataclasses.replace(
+        design,
+        sensor=dataclasses.replace(design.sensor, amplitude_mV=70.0),
+        gear_train=(design.gear_train[1],),
+        power=dataclasses.replace(design.power, cutoff_voltage_V=2.5, host_supply=None),
+    )
+    save_design(changed, path, overwrite=True)
+    text = path.read_text()
+    assert loads_design(text) == changed
+    assert 'adc_bits = 10' in text and "# inline" in text and "host_supply" not in text
+    assert 'power.cutoff_voltage = "2.5 V"\n' in text
 
 
 # --- round trip over generated designs ------------------------------------------------
@@ -476,6 +722,33 @@ def test_any_valid_design_round_trips_through_a_file(design):
 @given(designs())
 def test_dumped_files_satisfy_the_schema(design):
     SCHEMA_VALIDATOR.validate(tomllib.loads(dump_design(design)))
+
+
+def _annotated(text: str) -> str:
+    """``text`` with a comment above every table header and after every entry."""
+    lines = []
+    # Split on newlines only: strings may hold other line-breaking characters.
+    for line in text.rstrip("\n").split("\n"):
+        if line.startswith("["):
+            lines.append(f"# about {line}")
+        lines.append(f"{line}  # note" if " = " in line else line)
+    return "\n".join(lines) + "\n"
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow,
+                                                                 HealthCheck.filter_too_much])
+@given(designs(), designs())
+def test_saving_over_any_design_file_gives_the_new_design(before, after):
+    with tempfile.TemporaryDirectory() as folder:
+        path = __import__("pathlib").Path(folder) / "design.toml"
+        original = _annotated(dump_design(before))
+        path.write_text(original)
+        save_design(before, path, overwrite=True)
+        assert path.read_text() == original
+        save_design(after, path, overwrite=True)
+        assert loads_design(path.read_text()) == after
+        if before != after:
+            assert (path.parent / "design.toml.bak").read_text() == original
 
 
 # --- JSON Schema ---------------------------------------------------------------------------

@@ -7,6 +7,10 @@ plain floats of :mod:`turnkit.design`. Everything about a field — its key,
 units, range, default and description — comes from the sections'
 ``FIELDS`` tables, so loading, saving, validation and the schema agree.
 
+Saving over an existing design file edits it in place with tomlkit: only
+changed values are rewritten, and comments, layout and the way unchanged
+values are written are kept (see :func:`save_design`).
+
 Every problem raises :class:`turnkit.errors.DesignFileError` naming the entry
 (``gear_train[2].pitch``), the value, and what was expected; unknown keys get
 a did-you-mean; TOML syntax errors give the line.
@@ -28,10 +32,12 @@ True
 
 from __future__ import annotations
 
+import dataclasses
 import difflib
 import math
 import os
 import re
+import stat
 import tempfile
 from functools import lru_cache
 from pathlib import Path
@@ -484,10 +490,21 @@ def dump_design(design: d.ActuatorDesign) -> str:
 
 
 def save_design(design: d.ActuatorDesign, path: str | os.PathLike, overwrite: bool = False) -> Path:
-    """Write a design file atomically.
+    """Write a design file atomically, keeping what the user wrote in a file it replaces.
 
-    The text is written to a temporary file in the same folder and moved into
-    place with :func:`os.replace`, so a crash never leaves half a file.
+    A new file gets :func:`dump_design`'s text. Saving over an existing
+    design file (``overwrite=True``) edits that file instead of rewriting it:
+    only entries whose value changed are rewritten (with units, in the
+    attribute's unit), entries the design gained are added, and entries,
+    stages, consumers and motion scenarios it no longer has are removed.
+    Comments, blank lines, key order and the way unchanged values are written
+    ("0.002 m" stays "0.002 m" while the pitch is still 2 mm) are kept. The
+    previous content is kept in ``<name>.bak`` beside the file (one level:
+    each save replaces the last backup). When nothing changed the file and
+    its backup are left alone.
+
+    Every file is written to a temporary file in the same folder and moved
+    into place with :func:`os.replace`, so a crash never leaves half a file.
 
     Parameters
     ----------
@@ -502,29 +519,410 @@ def save_design(design: d.ActuatorDesign, path: str | os.PathLike, overwrite: bo
     -------
     pathlib.Path
         The path written.
+
+    Raises
+    ------
+    FileExistsError
+        When the file exists and ``overwrite`` is false.
+    DesignFileError
+        When the design would not read back unchanged, or the existing file
+        is not a design file turnkit reads (bad TOML, unknown keys, invalid
+        values): it is then left untouched rather than overwritten.
     """
     path = Path(path)
     text = dump_design(design)
     # A design that does not read back the same would silently lose data.
     if loads_design(text, source=str(path)) != design:
         raise DesignFileError("", "the design does not read back unchanged; not saved", source=str(path))
-    if path.exists() and not overwrite:
+    if not path.exists():
+        _write_atomic(path, text.encode("utf-8"), must_not_exist=not overwrite)
+        return path
+    if not overwrite:
         raise FileExistsError(f"{path} exists; pass overwrite=True to replace it")
+    old_bytes = path.read_bytes()
+    new_text = _merge_into_file(old_bytes, design, str(path))
+    if new_text is None:
+        return path
+    new_bytes = new_text.encode("utf-8")
+    mode = path.stat().st_mode
+    _write_atomic(path.with_name(path.name + ".bak"), old_bytes, mode=mode)
+    if path.read_bytes() != old_bytes:
+        raise DesignFileError("", "the file changed on disk while saving; not saved (the version read before "
+                                  f"the change is in {path.name}.bak)", source=str(path))
+    _write_atomic(path, new_bytes, mode=mode)
+    return path
+
+
+def _write_atomic(path: Path, data: bytes, must_not_exist: bool = False, mode: int | None = None) -> None:
+    """Write ``data`` to a temporary file beside ``path`` and move it into place."""
     folder = path.parent if str(path.parent) else Path(".")
     fd, temp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
     try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
-            handle.write(text)
+        with os.fdopen(fd, "wb") as handle:
+            handle.write(data)
             handle.flush()
             os.fsync(handle.fileno())
-        if not overwrite and path.exists():
+        if mode is None:
+            # A new file gets the permissions of any new file (mkstemp makes it private).
+            umask = os.umask(0)
+            os.umask(umask)
+            mode = 0o666 & ~umask
+        os.chmod(temp_name, stat.S_IMODE(mode))
+        if must_not_exist and path.exists():
             raise FileExistsError(f"{path} exists; pass overwrite=True to replace it")
         os.replace(temp_name, path)
     except BaseException:
         if os.path.exists(temp_name):
             os.unlink(temp_name)
         raise
-    return path
+
+
+def _merge_into_file(old_bytes: bytes, design: d.ActuatorDesign, source: str) -> str | None:
+    """The existing file's text edited to describe ``design``; None when nothing changed.
+
+    Raises DesignFileError when the existing file is not a design file turnkit
+    reads, or when the edited text would not read back as ``design``.
+    """
+    import tomlkit
+
+    try:
+        old_text = old_bytes.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise DesignFileError("", f"cannot save over this file: it is not UTF-8 text ({exc}); nothing was "
+                                  "written", source=source) from None
+    try:
+        old_design = loads_design(old_text, source=source)
+    except DesignFileError as exc:
+        raise DesignFileError("", f"cannot save over this file, it is not a design file turnkit reads ({exc}); "
+                                  "nothing was written: fix it or save to another file", source=source) from None
+    if old_design == design:
+        return None
+    try:
+        doc = tomlkit.parse(old_text)
+    except Exception as exc:  # tomlkit raises its own parse errors; tomllib accepted the text
+        raise DesignFileError("", f"cannot edit this file while keeping its layout ({exc}); nothing was written",
+                              source=source) from None
+    merger = _Merger(doc)
+    if doc.as_string() != old_text:
+        doc, merger = tomlkit.parse(old_text), _Merger(None)
+    try:
+        merger.design(doc, old_design, design)
+        new_text = doc.as_string()
+    except Exception as exc:  # an unusual layout tomlkit cannot edit in place
+        raise DesignFileError("", f"cannot edit this file while keeping its layout ({type(exc).__name__}: "
+                                  f"{exc}); nothing was written: save to another file", source=source) from None
+    if "\r\n" in old_text and "\n" not in old_text.replace("\r\n", ""):
+        new_text = re.sub(r"(?<!\r)\n", "\r\n", new_text)
+    try:
+        same = loads_design(new_text, source=source) == design
+    except DesignFileError:
+        same = False
+    if not same:
+        raise DesignFileError("", "cannot edit this file while keeping its layout: the edited text would not "
+                                  "read back as the design; nothing was written: save to another file",
+                              source=source)
+    return new_text
+
+
+class _Defaults:
+    """Stands for a section that the file leaves out: every attribute at its default."""
+
+    def __init__(self, cls: type):
+        self.values = {f.name: f.default for f in dataclasses.fields(cls)}
+
+    def __getattr__(self, attr: str):
+        return self.__dict__["values"].get(attr, dataclasses.MISSING)
+
+
+class _Merger:
+    """Edits a parsed tomlkit document in place so that it describes a new design.
+
+    Values are compared as the loader reads them (old design object against
+    new), so an entry is rewritten only when its value changed.
+    """
+
+    def __init__(self, doc):
+        import tomlkit
+
+        self.tomlkit = tomlkit
+        self.created: list = []
+        if doc is not None:
+            self._attach_leading_comments(doc)
+
+    # -- layout helpers --
+
+    def _attach_leading_comments(self, doc) -> None:
+        """Move comment lines that sit directly above a table header into the header's indent.
+
+        tomlkit keeps such comments at the end of the previous table; moved,
+        they travel with the table they describe when tables are removed or
+        reordered. The rendered text does not change.
+        """
+        from tomlkit.items import AoT, Comment, Null, Table, Whitespace
+
+        pending: list = []
+
+        def header(table) -> None:
+            nonlocal pending
+            if pending and "\n" not in table.trivia.indent:
+                text = "".join(item.as_string() for _, _, item in pending)
+                for body, index, _ in pending:
+                    body[index] = (None, Null())
+                table.trivia.indent = text + table.trivia.indent
+            pending = []
+
+        def walk(container) -> None:
+            nonlocal pending
+            body = container.body
+            for index, (_, item) in enumerate(body):
+                if isinstance(item, Null):
+                    continue
+                if isinstance(item, Comment):
+                    if "\n" in item.trivia.indent:
+                        pending = []
+                    pending.append((body, index, item))
+                elif isinstance(item, Whitespace):
+                    if "\n" in item.s:
+                        pending = []
+                elif isinstance(item, AoT):
+                    for table in item.body:
+                        header(table)
+                        walk(table.value)
+                elif isinstance(item, Table):
+                    if not item.is_super_table():
+                        header(item)
+                    walk(item.value)
+                else:
+                    pending = []
+
+        walk(doc)
+
+    @staticmethod
+    def _cut_tail(table) -> str:
+        """Remove the blank lines and comments after a table's last entry; return their text."""
+        from tomlkit.items import Comment, Null, Whitespace
+
+        body = table.value.body
+        index = len(body)
+        while index > 0 and isinstance(body[index - 1][1], (Comment, Whitespace, Null)):
+            index -= 1
+        text = "".join(item.as_string() for _, item in body[index:])
+        for i in range(index, len(body)):
+            body[i] = (None, Null())
+        return text
+
+    def _insert(self, table, key: str, value: Any, after: str | None) -> None:
+        """Add ``key`` after the entry ``after`` (or before the first entry when None)."""
+        from tomlkit.container import Container
+        from tomlkit.items import Comment, InlineTable, Null, Table, Whitespace
+
+        container = table if isinstance(table, Container) else table.value if isinstance(table, Table) else None
+        if container is None or isinstance(table, InlineTable):
+            table[key] = value
+            return
+        if after is not None and after in container:
+            container._insert_after(after, key, value)
+            return
+        body = container.body
+        for index, (k, item) in enumerate(body):
+            if k is not None or not isinstance(item, (Comment, Whitespace, Null)):
+                container._insert_at(index, key, value)
+                return
+        if body:
+            container._insert_at(0, key, value)
+        else:
+            container.append(key, value)
+
+    def _space_nested(self, parent, first, last) -> None:
+        """Blank lines around a table added inside another one (``[power.host_supply]``).
+
+        Tables added to the document go at its end and need no trailing line;
+        tomlkit spaces tables inside a table that is new itself.
+        """
+        if isinstance(parent, self.tomlkit.TOMLDocument) or any(parent is t for t in self.created):
+            return
+        if "\n" not in first.trivia.indent:
+            first.trivia.indent = "\n" + first.trivia.indent
+        last.add(self.tomlkit.nl())
+
+    # -- sections --
+
+    def fields(self, table, old, new, skip: tuple[str, ...] = ()) -> None:
+        """Update the entries of one section: ``old`` as read from the file, ``new`` the design's."""
+        written = _section_table(new, skip)
+        # A stage's kind is not one of its FIELDS; new keys go after it.
+        has_kind = any(spec.key == "kind" for spec in type(new).FIELDS)
+        previous: str | None = "kind" if "kind" in table and not has_kind else None
+        for spec in type(new).FIELDS:
+            if spec.key in skip:
+                continue
+            present = spec.key in table
+            if all(getattr(old, a) == getattr(new, a) for a in spec.attrs):
+                pass
+            elif spec.key not in written:
+                if present:
+                    del table[spec.key]
+                    present = False
+            elif present:
+                table[spec.key] = written[spec.key]
+            else:
+                self._insert(table, spec.key, written[spec.key], previous)
+                present = True
+            if present:
+                previous = spec.key
+
+    def new_table(self, obj, fill) -> Any:
+        """A new table holding what differs from an empty one."""
+        table = self.tomlkit.table()
+        self.created.append(table)
+        fill(table, _Defaults(type(obj)), obj)
+        return table
+
+    def section(self, parent, key: str, old, new, fill=None) -> None:
+        """A single table (``[sensor]``, ``[battery]``); ``old``/``new`` None when absent."""
+        fill = fill or self.fields
+        if old == new:
+            return
+        if key in parent:
+            if new is None:
+                del parent[key]
+            else:
+                fill(parent[key], old if old is not None else _Defaults(type(new)), new)
+            return
+        table = self.new_table(new, fill)
+        self._space_nested(parent, table, table)
+        parent.append(key, table)
+
+    def design(self, doc, old: d.ActuatorDesign, new: d.ActuatorDesign) -> None:
+        self.fields(doc, old, new)
+        self.array(doc, "gear_train", old.gear_train, new.gear_train, self.stage, _align_stages)
+        for key in ("sensor", "latches", "counter", "schedule"):
+            self.section(doc, key, getattr(old, key), getattr(new, key))
+        self.section(doc, "power", old.power, new.power, fill=self.power)
+        self.section(doc, "battery", old.battery, new.battery)
+        self.array(doc, "motion", old.motion, new.motion, self.fields, _align_named)
+        self.section(doc, "requirements", old.requirements, new.requirements)
+
+    def stage(self, table, old, new) -> None:
+        if "kind" not in table:
+            self._insert(table, "kind", new.KIND, None)
+        self.fields(table, old, new)
+
+    def power(self, table, old, new) -> None:
+        self.fields(table, old, new)
+        empty = d.PowerDesign()
+        old_consumers = old.consumers if isinstance(old, d.PowerDesign) else empty.consumers
+        old_host = old.host_supply if isinstance(old, d.PowerDesign) else None
+        self.array(table, "consumers", old_consumers, new.consumers, self.fields, _align_named)
+        self.section(table, "host_supply", old_host, new.host_supply)
+
+    # -- arrays of tables --
+
+    def array(self, parent, key: str, old: tuple, new: tuple, fill, align) -> None:
+        """Stages, consumers or motion scenarios: edit matched tables in place, drop and add the rest."""
+        if old == new:
+            return
+        if not new:
+            if key in parent:
+                del parent[key]
+            return
+        if key not in parent:
+            aot = self.tomlkit.aot()
+            for obj in new:
+                aot.append(self.new_table(obj, fill))
+            self._space_nested(parent, aot.body[0], aot.body[-1])
+            parent.append(key, aot)
+            return
+        container = parent[key]
+        pairs = align(old, new)  # for each new item: index of the old item it replaces, or None
+        if not isinstance(container, self.tomlkit.items.AoT):
+            self._inline_array(container, old, new, pairs, fill)
+            return
+        originals = list(container.body)
+        tails = [self._cut_tail(t) for t in originals]
+        end_block = tails[-1]
+        separator = tails[0] if len(originals) > 1 and not tails[0].strip() else "\n"
+        tables = []
+        for obj, index in zip(new, pairs):
+            if index is None:
+                table = self.new_table(obj, fill)
+            else:
+                table = originals[index]
+                fill(table, old[index], obj)
+            tables.append(table)
+        if 0 not in pairs:
+            # Comments above the first table may describe the whole array: keep them.
+            lead, _, _ = originals[0].trivia.indent.rpartition("\n")
+            if lead:
+                tables[0].trivia.indent = lead + "\n" + tables[0].trivia.indent
+        for position, (table, index) in enumerate(zip(tables, pairs)):
+            if position == len(tables) - 1:
+                own = tails[index] if index is not None and index != len(originals) - 1 else ""
+                tail = (own.rstrip("\n") + "\n" if own.strip() else "") + end_block
+            elif index is not None and index != len(originals) - 1:
+                tail = tails[index]
+            else:
+                tail = separator
+            if tail:
+                table.add(self.tomlkit.ws(tail))
+        del container[:]
+        for table in tables:
+            container.append(table)
+
+    def _inline_array(self, array, old, new, pairs, fill) -> None:
+        """The same edit for an array written inline (``gear_train = [{...}, {...}]``)."""
+        items = list(array)
+        result = []
+        for obj, index in zip(new, pairs):
+            if index is None:
+                table = self.tomlkit.inline_table()
+                fill(table, _Defaults(type(obj)), obj)
+            else:
+                table = items[index]
+                fill(table, old[index], obj)
+            result.append(table)
+        kept = [i for i in pairs if i is not None]
+        if kept == sorted(kept) and len(kept) == len(set(kept)):
+            for index in sorted(set(range(len(items))) - set(kept), reverse=True):
+                del array[index]
+            for position, index in enumerate(pairs):
+                if index is None:
+                    array.insert(position, result[position])
+        else:
+            while len(array):
+                del array[len(array) - 1]
+            for table in result:
+                array.append(table)
+
+
+def _align_stages(old: tuple, new: tuple) -> list:
+    """Match gear stages: unchanged stages by value, changed ones in place when of the same kind."""
+    pairs: list = [None] * len(new)
+    matcher = difflib.SequenceMatcher(None, list(old), list(new), autojunk=False)
+    for tag, i1, i2, j1, j2 in matcher.get_opcodes():
+        if tag == "equal":
+            for k in range(i2 - i1):
+                pairs[j1 + k] = i1 + k
+        elif tag == "replace":
+            for k in range(min(i2 - i1, j2 - j1)):
+                if old[i1 + k].KIND == new[j1 + k].KIND:
+                    pairs[j1 + k] = i1 + k
+    return pairs
+
+
+def _align_named(old: tuple, new: tuple) -> list:
+    """Match consumers or scenarios by name; a renamed one keeps its place when it can be told."""
+    old_names = [item.name for item in old]
+    pairs: list = [old_names.index(item.name) if item.name in old_names else None for item in new]
+    matcher = difflib.SequenceMatcher(None, old_names, [item.name for item in new], autojunk=False)
+    used = {i for i in pairs if i is not None}
+    for tag, i1, i2, j1, j2 in matcher.get_opcodes():
+        if tag == "replace" and i2 - i1 == j2 - j1:
+            for k in range(i2 - i1):
+                if pairs[j1 + k] is None and i1 + k not in used:
+                    pairs[j1 + k] = i1 + k
+                    used.add(i1 + k)
+    return pairs
 
 
 # --- JSON Schema -----------------------------------------------------------------
