@@ -1,0 +1,359 @@
+"""The ``turnkit`` command: start, size and document actuator designs.
+
+Subcommands
+-----------
+``new NAME``
+    Write ``NAME.toml`` (a commented example design) and ``NAME.ipynb`` (the
+    notebook) from the package templates; never replaces a file.
+``size FILE``
+    Size a design file and print a plain-text summary, or write it with
+    ``-o OUT`` as HTML, Markdown, JSON or text, chosen by OUT's extension.
+``schema``
+    Print the JSON Schema of the design-file format.
+``lab [NOTEBOOK]``
+    Start JupyterLab on a notebook.
+
+Exit status: 0 when every requirement passes, 1 when any requirement or
+motion scenario fails, 2 when no verdict was reached: a bad design file, bad
+usage or an internal error (the error goes to stderr).
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib.util
+import json
+import os
+import shlex
+import subprocess
+import sys
+import warnings
+from pathlib import Path
+from typing import Sequence
+
+from . import __version__
+from .errors import DesignFileError, DesignValueError, TurnkitError, TurnkitWarning
+
+__all__ = ["main", "build_parser", "lab_command", "EXIT_PASS", "EXIT_FAIL", "EXIT_ERROR", "TEMPLATES"]
+
+#: Exit status when every requirement passes.
+EXIT_PASS = 0
+#: Exit status when a requirement or a motion scenario fails.
+EXIT_FAIL = 1
+#: Exit status for a bad file or bad usage.
+EXIT_ERROR = 2
+
+#: Folder of the design and notebook templates used by ``turnkit new``.
+TEMPLATES = Path(__file__).parent / "templates"
+
+_DESCRIPTION = """\
+Size battery-backed multi-turn geared actuators: gear train, AMR angle sensor,
+quarter-turn counter, sleep schedule and battery life."""
+
+_EPILOG = """\
+examples:
+  turnkit new vent-opener              start a design file and a notebook
+  turnkit size vent-opener.toml        print the sizing summary
+  turnkit size vent-opener.toml -o review.html
+                                       write it as a page for a design review
+  turnkit schema > design-schema.json  the design-file format as JSON Schema
+  turnkit lab vent-opener.ipynb        open the notebook in JupyterLab
+
+exit status: 0 all requirements pass, 1 a requirement fails, 2 bad file or usage."""
+
+_NEW_EPILOG = """\
+examples:
+  turnkit new vent-opener
+      writes vent-opener.toml and vent-opener.ipynb in the current folder
+  turnkit new shade-winder --dir designs/
+      writes designs/shade-winder.toml and designs/shade-winder.ipynb
+
+Existing files are never replaced. Edit the .toml file (every entry is
+commented), then run `turnkit size NAME.toml` or open the notebook."""
+
+_SIZE_EPILOG = """\
+examples:
+  turnkit size valve.toml                      print the summary
+  turnkit size valve.toml -o valve.html        self-contained page, works offline
+  turnkit size valve.toml -o valve.md          Markdown for a code review
+  turnkit size valve.toml -o valve.json        machine-readable, documented keys
+  turnkit size valve.toml -o valve.html --overwrite
+  turnkit size valve.toml > /dev/null || echo "a requirement fails"
+
+exit status: 0 every requirement and motion scenario passes, 1 any fails,
+2 the design file (or an option) is bad; errors go to stderr."""
+
+_SCHEMA_EPILOG = """\
+examples:
+  turnkit schema                       print the schema
+  turnkit schema > design-schema.json  save it for an editor's TOML/JSON validation"""
+
+_LAB_EPILOG = """\
+examples:
+  turnkit lab                          JupyterLab in the current folder
+  turnkit lab vent-opener.ipynb        open one notebook
+  turnkit lab vent-opener.ipynb --port 8890 --no-browser
+                                       other options go to JupyterLab unchanged
+
+Needs the notebook extras: pip install "turnkit[notebook]". Run as root,
+--allow-root is added for you."""
+
+
+class _Parser(argparse.ArgumentParser):
+    """An ArgumentParser whose usage errors raise instead of exiting, so main() returns 2."""
+
+    def error(self, message: str):
+        raise _UsageError(self, message)
+
+
+class _UsageError(Exception):
+    def __init__(self, parser: argparse.ArgumentParser, message: str):
+        super().__init__(message)
+        self.parser = parser
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser of the ``turnkit`` command (for documentation and tests)."""
+    fmt = argparse.RawDescriptionHelpFormatter
+    parser = _Parser(prog="turnkit", description=_DESCRIPTION, epilog=_EPILOG, formatter_class=fmt)
+    parser.add_argument("--version", action="version", version=f"turnkit {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    new = sub.add_parser("new", help="start a design file and a notebook for a new actuator",
+                         description="Write NAME.toml (a commented example design) and NAME.ipynb "
+                                     "(the sizing notebook) from turnkit's templates.",
+                         epilog=_NEW_EPILOG, formatter_class=fmt)
+    new.add_argument("name", metavar="NAME", help="name of the actuator and of the two files (no folder; "
+                                                  "use --dir)")
+    new.add_argument("--dir", metavar="DIR", default=".", type=Path,
+                     help="folder to write into (default: the current folder; created if missing)")
+
+    size = sub.add_parser("size", help="size a design file and print or write the summary",
+                          description="Size the actuator in a design file. Prints a plain-text summary "
+                                      "(requirements with PASS/FAIL and margins, simulated motions, derived "
+                                      "values, warnings and cautions), or writes it to OUT.",
+                          epilog=_SIZE_EPILOG, formatter_class=fmt)
+    size.add_argument("file", metavar="FILE", type=Path, help="the design file (.toml)")
+    size.add_argument("-o", "--output", metavar="OUT", type=Path,
+                      help="write the summary here instead of printing it; the extension picks the format: "
+                           ".html, .md, .json or .txt")
+    size.add_argument("--overwrite", action="store_true", help="replace OUT if it exists")
+
+    sub.add_parser("schema", help="print the JSON Schema of the design-file format",
+                   description="Print the JSON Schema (draft 2020-12) that describes design files, "
+                               "with every key's unit, range and default.",
+                   epilog=_SCHEMA_EPILOG, formatter_class=fmt)
+
+    lab = sub.add_parser("lab", help="start JupyterLab on a notebook",
+                         description="Start JupyterLab, opening NOTEBOOK if given. Options turnkit does not "
+                                     "know are passed to JupyterLab.",
+                         epilog=_LAB_EPILOG, formatter_class=fmt)
+    lab.add_argument("notebook", metavar="NOTEBOOK", nargs="?", type=Path, help="the notebook to open")
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the ``turnkit`` command with ``argv`` (default: ``sys.argv[1:]``); return the exit status."""
+    parser = build_parser()
+    args_list = list(sys.argv[1:] if argv is None else argv)
+    try:
+        args, extra = parser.parse_known_args(args_list)
+        if extra and args.command != "lab":
+            parser.error(f"unrecognized arguments: {' '.join(extra)}")
+    except _UsageError as exc:
+        exc.parser.print_usage(sys.stderr)
+        print(f"{exc.parser.prog}: error: {exc}", file=sys.stderr)
+        return EXIT_ERROR
+    except SystemExit as exc:  # --help and --version
+        return int(exc.code or 0) if not isinstance(exc.code, str) else EXIT_ERROR
+    if args.command is None:
+        parser.print_help(sys.stderr)
+        return EXIT_ERROR
+    try:
+        if args.command == "new":
+            return _new(args.name, args.dir)
+        if args.command == "size":
+            return _size(args.file, args.output, args.overwrite)
+        if args.command == "schema":
+            return _schema()
+        return _lab(args.notebook, extra)
+    except (DesignFileError, DesignValueError, TurnkitError, FileExistsError, FileNotFoundError,
+            IsADirectoryError, PermissionError) as exc:
+        print(f"turnkit {args.command}: error: {exc}", file=sys.stderr)
+        return EXIT_ERROR
+    except Exception:
+        # A crash must not read as "a requirement fails" (status 1) in someone's CI.
+        import traceback
+
+        traceback.print_exc(file=sys.stderr)
+        print(f"turnkit {args.command}: internal error (the traceback above); no verdict was reached",
+              file=sys.stderr)
+        return EXIT_ERROR
+
+
+def _err(command: str, message: str) -> int:
+    print(f"turnkit {command}: error: {message}", file=sys.stderr)
+    return EXIT_ERROR
+
+
+# --- new --------------------------------------------------------------------------
+
+def _new(name: str, folder: Path) -> int:
+    stem = name[:-5] if name.endswith(".toml") else name
+    if not stem.strip() or stem != stem.strip() or stem.startswith(".") or any(c in stem for c in "/\\:"):
+        return _err("new", f"NAME must be a plain file name without a folder, not {name!r} "
+                           "(use --dir to choose the folder)")
+    design_template = TEMPLATES / "design.toml"
+    notebook_template = TEMPLATES / "notebook.ipynb"
+    for template in (design_template, notebook_template):
+        if not template.is_file():
+            return _err("new", f"template {template} is missing from this turnkit installation; "
+                               "nothing was written")
+    design_path = folder / f"{stem}.toml"
+    notebook_path = folder / f"{stem}.ipynb"
+    existing = [str(p) for p in (design_path, notebook_path) if p.exists()]
+    if existing:
+        return _err("new", f"{' and '.join(existing)} already exist{'s' if len(existing) == 1 else ''}; "
+                           "nothing was written (pick another NAME or --dir)")
+    design_text = _named_design(design_template.read_text(encoding="utf-8"), stem)
+    notebook_text = _named_notebook(notebook_template.read_text(encoding="utf-8"), stem)
+    folder.mkdir(parents=True, exist_ok=True)
+    written: list[Path] = []
+    try:
+        for path, text in ((design_path, design_text), (notebook_path, notebook_text)):
+            _create(path, text)
+            written.append(path)
+    except BaseException:
+        for path in written:  # all or nothing
+            path.unlink(missing_ok=True)
+        raise
+    print(f"wrote {design_path}\nwrote {notebook_path}\n"
+          f"next: edit {design_path}, then `turnkit size {shlex.quote(str(design_path))}` "
+          f"or `turnkit lab {shlex.quote(str(notebook_path))}`")
+    return EXIT_PASS
+
+
+def _named_design(template: str, name: str) -> str:
+    """The template with its ``name = ...`` line set to ``name`` (TOML-quoted)."""
+    import tomli_w
+
+    line = tomli_w.dumps({"name": name}).strip()
+    lines = template.splitlines(keepends=True)
+    for i, text in enumerate(lines):
+        if text.startswith("name = "):
+            lines[i] = line + "\n"
+            return "".join(lines)
+    raise TurnkitError("the design template has no top-level `name = ...` line")
+
+
+def _named_notebook(template: str, name: str) -> str:
+    """The notebook template, pointed at ``NAME.toml`` when it names its design file.
+
+    The template may refer to its design file as ``design.toml``; that name is
+    replaced by ``NAME.toml`` in code cells so the new notebook opens its own design.
+    """
+    try:
+        notebook = json.loads(template)
+    except json.JSONDecodeError as exc:
+        raise TurnkitError(f"the notebook template is not valid JSON: {exc}") from None
+    target = json.dumps(f"{name}.toml")[1:-1]
+    changed = False
+    for cell in notebook.get("cells", []):
+        if cell.get("cell_type") != "code":
+            continue
+        source = cell.get("source", [])
+        joined = "".join(source) if isinstance(source, list) else str(source)
+        if "design.toml" in joined:
+            replaced = joined.replace("design.toml", target)
+            cell["source"] = replaced.splitlines(keepends=True) if isinstance(source, list) else replaced
+            changed = True
+    if not changed:
+        return template
+    return json.dumps(notebook, indent=1, ensure_ascii=False) + "\n"
+
+
+def _create(path: Path, text: str) -> None:
+    """Write a new file; fail if it appeared meanwhile (never replaces anything)."""
+    with open(path, "x", encoding="utf-8", newline="\n") as handle:
+        handle.write(text)
+
+
+# --- size -------------------------------------------------------------------------
+
+def _size(file: Path, output: Path | None, overwrite: bool) -> int:
+    from .designfile import load_design
+    from .export import SUFFIXES, to_text, write_summary
+    from .sizing import size
+
+    if output is not None and output.suffix.lower() not in SUFFIXES:
+        return _err("size", f"cannot tell the format of {output}: its extension must be one of "
+                            f"{', '.join(SUFFIXES)}")
+    if output is not None and output.exists() and not overwrite:
+        return _err("size", f"{output} already exists; add --overwrite to replace it")
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", TurnkitWarning)
+        design = load_design(file)
+        # Trace files are named relative to the design file.
+        # Plot data only when the summary shows it (the printed text has no plots).
+        wants_curves = output is not None and output.suffix.lower() != ".txt"
+        result = size(design, base_dir=file.parent, curves=wants_curves)
+    shown = set(result.warnings)
+    for w in caught:
+        if issubclass(w.category, TurnkitWarning) and str(w.message) not in shown:
+            shown.add(str(w.message))
+            print(f"turnkit size: warning: {w.message}", file=sys.stderr)
+        elif not issubclass(w.category, TurnkitWarning):
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+    if output is None:
+        _write_stdout(to_text(result))
+    else:
+        path = write_summary(result, output, overwrite=overwrite)
+        verdict = "PASS" if result.passed else "FAIL"
+        failed = [c.label for c in result.failed_checks] + [f"motion '{s.name}'" for s in result.scenarios
+                                                            if not s.passed]
+        print(f"wrote {path} ({verdict}" + (f": {'; '.join(failed)} failed)" if failed else ")"))
+    return EXIT_PASS if result.passed else EXIT_FAIL
+
+
+def _write_stdout(text: str) -> None:
+    """Print ``text``; characters the terminal's encoding lacks (e.g. "°" on some consoles) become "?"."""
+    try:
+        sys.stdout.write(text)
+    except UnicodeEncodeError:
+        encoding = getattr(sys.stdout, "encoding", None) or "ascii"
+        sys.stdout.write(text.encode(encoding, "replace").decode(encoding))
+
+
+# --- schema -----------------------------------------------------------------------
+
+def _schema() -> int:
+    from .designfile import design_schema
+
+    _write_stdout(json.dumps(design_schema(), indent=2, ensure_ascii=False) + "\n")
+    return EXIT_PASS
+
+
+# --- lab --------------------------------------------------------------------------
+
+def lab_command(notebook: Path | None, extra: Sequence[str] = ()) -> list[str]:
+    """The command line that starts JupyterLab (``--allow-root`` added when running as root)."""
+    command = [sys.executable, "-m", "jupyterlab"]
+    if notebook is not None:
+        command.append(str(notebook))
+    command.extend(extra)
+    geteuid = getattr(os, "geteuid", None)
+    if geteuid is not None and geteuid() == 0 and "--allow-root" not in command:
+        command.append("--allow-root")
+    return command
+
+
+def _lab(notebook: Path | None, extra: Sequence[str]) -> int:
+    if importlib.util.find_spec("jupyterlab") is None:
+        return _err("lab", 'JupyterLab is not installed; install it with: pip install "turnkit[notebook]"')
+    if notebook is not None and not notebook.is_file():
+        return _err("lab", f"notebook {notebook} not found (create one with `turnkit new NAME`)")
+    extra = [a for a in extra if a != "--"]
+    try:
+        return subprocess.call(lab_command(notebook, extra))
+    except KeyboardInterrupt:
+        return 130
