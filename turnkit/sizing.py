@@ -585,9 +585,9 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     margin = latch_mod.half_turn_margin(build_latches(design), fine_error_deg=motor_peak)
     add("half_turn_margin_deg", "Half-turn margin of the quadrant latches", margin.margin_deg, "deg", "sensor",
         note="45 deg less latch tolerance, half the hysteresis, misalignment and sensor error")
-    checks.append(_check("half_turn_margin", "Quadrant latches pick the right half-turn everywhere",
-                        margin.margin_deg, 0.0, "deg", ">=",
-                        advice="tighten the latch switch-point tolerance or the magnet alignment"))
+    checks.append(_check("half_turn_margin", "Latch tolerances and sensor error leave the half-turn decision safe",
+                         margin.consumed_deg, margin.available_deg, "deg", "<=",
+                         advice="tighten the latch switch-point tolerance, the hysteresis or the magnet alignment"))
     if not margin.ok:
         zones = ", ".join(f"{a:.0f}-{b:.0f} deg" for a, b in margin.fail_zones_deg[:4])
         warns.append(f"The half-turn decision can fail near {zones} of each motor turn.")
@@ -683,6 +683,9 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
                 need_cap = float(batt.capacity_needed_mAh(budget.average_current_uA, req.battery_life_years, pack,
                                                           temperature_C=temperature_C))
                 advice = f"a battery of at least {need_cap:.4g} mAh, or a lower average current"
+                if req_speed is not None and max_period_s > schedule.poll_period_s * 1.01:
+                    advice += (f"; polling only as often as the back-drive speed needs (every "
+                               f"{max_period_s * 1e3:.4g} ms) also saves charge")
                 add("capacity_needed_mAh", "Capacity needed for the required life", need_cap, "mAh", "battery",
                     equation="capacity_for_life")
             except DesignValueError:
@@ -710,8 +713,9 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
             warns.append(
                 f"No poll period meets both requirements: polling every {max_period_s * 1e3:.4g} ms (the "
                 f"longest that follows {req_speed:g} {out_speed_unit}) lasts only {life_at_limit:.3g} years "
-                f"against {req.battery_life_years:g} required. Relax the back-drive speed, accept a shorter "
-                "life, use a larger battery, cut the sleep current, or poll adaptively.")
+                f"against {req.battery_life_years:g} required.")
+            warns.extend(_relax_lines(profile, pack, schedule, required_rpm, req.battery_life_years, temperature_C,
+                                      train))
 
     # -- motion scenarios ---------------------------------------------------------
     scenarios: list[Scenario] = []
@@ -763,6 +767,29 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
         ),
         inputs=tomllib.loads(text),
     )
+
+
+def _relax_lines(profile, pack, schedule, required_rpm, life_years, temperature_C, train) -> list[str]:
+    """How far each requirement must move for some poll period to meet both (symbolic model)."""
+    from .equations import relax_advice
+
+    totals = profile.state_totals_uA()
+    t_wake = schedule.wake_time_s + schedule.settle_time_s
+    t_awake = t_wake + schedule.poll_time_s
+    # One equivalent awake current carrying the same charge per wake as the two awake states.
+    awake_uA = (totals["waking"] * t_wake + totals["polling"] * schedule.poll_time_s) / t_awake
+    try:
+        advice = relax_advice(
+            backdrive_motor_speed_rpm=required_rpm, life_years=life_years, capacity_mAh=pack.capacity_mAh,
+            sleep_current_uA=totals["asleep"], awake_current_uA=awake_uA, awake_time_s=t_awake,
+            temperature_derating=float(pack.temperature_factor(temperature_C)),
+            self_discharge_per_year=pack.self_discharge_per_year,
+            travel_per_turn=float(train.travel_per_motor_turn), output_unit=train.output_unit)
+    except DesignValueError as exc:
+        return [f"Relaxation advice unavailable: {exc}"]
+    rec = advice.recommended
+    return [f"To make both fit{' (the smallest change)' if o == rec else ''}: {o.text}"
+            for o in advice.options if o.possible]
 
 
 def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw, max_period_s, required_rpm,
