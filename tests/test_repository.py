@@ -41,3 +41,24 @@ def test_importing_turnkit_loads_no_symbolic_plotting_or_widget_package():
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == ""
+
+
+def test_readme_python_examples_run(monkeypatch):
+    monkeypatch.chdir(ROOT)
+    text = (ROOT / "README.md").read_text()
+    blocks = re.findall(r"```python\n(.*?)\n```", text, flags=re.S)
+    assert blocks
+    for block in blocks:
+        exec(compile(block, "README.md", "exec"), {})
+
+
+def test_readme_example_numbers_match_the_code(monkeypatch):
+    # The comments in the README's first example quote these results.
+    monkeypatch.chdir(ROOT)
+    from turnkit.designfile import load_design
+    from turnkit.sizing import size
+
+    result = size(load_design("demo/camera-crane-joint.toml"), base_dir="demo", curves=False)
+    text = (ROOT / "README.md").read_text()
+    for key in ("max_poll_period_ms", "battery_life_years"):
+        assert f"'{result.value(key).formatted()}'" in text
