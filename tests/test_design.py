@@ -172,7 +172,12 @@ def test_belt_accepts_teeth_or_diameters():
 
 def test_fast_poll_period_cannot_exceed_poll_period():
     with pytest.raises(DesignValueError, match=r"fast_poll_period_ms must be <= poll_period \(5 ms\)"):
-        d.ScheduleDesign(poll_period_ms=5.0, fast_poll_period_ms=6.0)
+        d.ScheduleDesign(kind="adaptive", poll_period_ms=5.0, fast_poll_period_ms=6.0)
+
+
+def test_fixed_schedule_ignores_the_fast_period():
+    # Regression: a fixed schedule faster than the default fast period was refused.
+    assert d.ScheduleDesign(kind="fixed", poll_period_ms=0.5).poll_period_ms == 0.5
 
 
 def test_poll_period_must_exceed_the_time_awake():

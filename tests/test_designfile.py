@@ -266,7 +266,7 @@ STAGE = BASE + "[[gear_train]]\n"
         (STAGE + 'kind = "belt"\nteeth_driver = 12\n', "gear_train[0].teeth_driver: must be given as one pair"),
         (STAGE + 'kind = "internal"\nteeth_driver = 40\nteeth_driven = 20\n',
          "gear_train[0].teeth_driven: must be more than teeth_driver (40), not 20"),
-        (BASE + '[schedule]\npoll_period = "1 ms"\nfast_poll_period = "2 ms"\n',
+        (BASE + '[schedule]\nkind = "adaptive"\npoll_period = "1 ms"\nfast_poll_period = "2 ms"\n',
          "v.toml: schedule.fast_poll_period: must be <= poll_period (1 ms), not 2 ms"),
         (BASE + '[[motion]]\nname="a"\nkind="constant"\nspeed="5 rpm"\n',
          "v.toml: motion[0].duration: must be given for a 'constant' motion; a 'constant' motion needs "

@@ -654,7 +654,8 @@ class ScheduleDesign(_Section):
     jitter: float = 0.0
 
     def _check_together(self) -> None:
-        if self.fast_poll_period_ms > self.poll_period_ms:
+        # The fast period matters only to an adaptive schedule; a fixed one ignores it.
+        if self.kind == "adaptive" and self.fast_poll_period_ms > self.poll_period_ms:
             _fail(self, "fast_poll_period_ms", self.fast_poll_period_ms,
                   f"<= poll_period ({_short(self.poll_period_ms)} ms)", unit="ms")
         awake_ms = (self.wake_time_us + self.settle_time_us + self.poll_time_us) / 1000.0
