@@ -189,15 +189,7 @@ def build_train(design: ActuatorDesign) -> gears.GearTrain:
 
 def build_sensor(design: ActuatorDesign) -> sensor_mod.BridgeSensor:
     """The :class:`~turnkit.sensor.BridgeSensor` of a design."""
-    s = design.sensor
-    try:
-        return sensor_mod.BridgeSensor(
-            amplitude_mV=s.amplitude_mV, offset_x_mV=s.offset_x_mV, offset_y_mV=s.offset_y_mV,
-            gain_mismatch=s.gain_mismatch, phase_error_deg=s.phase_error_deg, harmonic2=s.harmonic2,
-            harmonic3=s.harmonic3, noise_rms_mV=s.noise_rms_mV, adc_bits=s.adc_bits,
-            adc_full_scale_mV=s.adc_full_scale_mV)
-    except DesignValueError as exc:
-        raise _relabel(exc, "sensor") from None
+    return _sensor_of(design.sensor)
 
 
 def build_latches(design: ActuatorDesign) -> latch_mod.QuadrantLatches:
