@@ -4,9 +4,11 @@ Run:  /work/venv/bin/python benchmarks/bench_sensor.py [--samples 1000000] [--lo
 
 Both paths start from the same raw bridge samples (x, y in mV) and latch
 codes and produce the 0–360° shaft angle. The vectorised path is
-``turnkit.latches.decode_full_turn_deg`` (one fused pass); the two-step path
+``turnkit.latches.decode_full_turn_deg`` (one fused pass over cache-sized
+blocks, float64); the same with ``dtype=np.float32`` (from the same float64
+samples, so its time includes the casts) and the two-step path
 ``turnkit.sensor.decode_deg`` then ``turnkit.latches.combine_half_turn_deg``
-is timed too.
+are timed too.
 The baseline is a per-sample Python loop with ``math.atan2`` doing the same
 arithmetic. To keep the run short the loop is timed on the first
 ``--loop-samples`` samples and its rate is scaled to samples per second; the
@@ -30,6 +32,10 @@ _GRAY_TO_QUADRANT = (0, 1, 3, 2)
 
 def vectorised(x, y, code):
     return decode_full_turn_deg(x, y, code)
+
+
+def vectorised_float32(x, y, code):
+    return decode_full_turn_deg(x, y, code, dtype=np.float32)
 
 
 def two_step(x, y, code):
@@ -78,19 +84,27 @@ def main(argv=None):
     assert diff.max() < 1e-9, "loop and vectorised paths disagree"
 
     np.testing.assert_array_equal(two_step(x, y, code), vec)
+    vec32 = vectorised_float32(x, y, code)
+    diff32 = np.abs(np.mod(vec32.astype(float) - vec + 180.0, 360.0) - 180.0)
+    assert diff32.max() < 1e-4, "float32 path strays from float64 by 1e-4 deg or more"
+
     t_vec = _median_time(lambda: vectorised(x, y, code), args.repeats)
+    t_32 = _median_time(lambda: vectorised_float32(x, y, code), args.repeats)
     t_two = _median_time(lambda: two_step(x, y, code), args.repeats)
     t_loop = _median_time(lambda: python_loop(xl, yl, cl), max(1, args.repeats // 2))
     rate_vec = args.samples / t_vec
     rate_loop = n_loop / t_loop
     print(f"decode + half-turn combine, {args.samples:,} samples")
     print(f"  vectorised : median {t_vec * 1e3:8.2f} ms  -> {rate_vec / 1e6:8.2f} M samples/s")
+    print(f"  float32    : median {t_32 * 1e3:8.2f} ms  -> {args.samples / t_32 / 1e6:8.2f} M samples/s"
+          f"  (ratio vs loop {args.samples / t_32 / rate_loop:.0f}x, "
+          f"max deviation from float64 {diff32.max():.1e} deg)")
     print(f"  two-step   : median {t_two * 1e3:8.2f} ms  -> {args.samples / t_two / 1e6:8.2f} M samples/s"
           f"  (ratio vs loop {args.samples / t_two / rate_loop:.0f}x)")
     print(f"  python loop: median {t_loop * 1e3:8.2f} ms on {n_loop:,} samples "
           f"-> {rate_loop / 1e6:8.3f} M samples/s (scaled to {args.samples:,}: "
           f"{t_loop * args.samples / n_loop:.2f} s)")
-    print(f"  ratio vectorised / loop: {rate_vec / rate_loop:.0f}x")
+    print(f"  ratio vectorised (float64) / loop: {rate_vec / rate_loop:.0f}x")
     return rate_vec / rate_loop
 
 

@@ -197,7 +197,7 @@ def _reference_full_turn(x, y, code):
 
 def test_fused_decode_matches_two_step_and_python_oracle_across_blocks():
     rng = np.random.default_rng(4)
-    n = 40_000  # spans several internal blocks
+    n = 150_000  # spans several internal blocks (2**16 samples each) and a partial one
     x, y = rng.normal(size=n), rng.normal(size=n)
     code = rng.integers(0, 4, n)
     fused = decode_full_turn_deg(x, y, code)
@@ -224,3 +224,94 @@ def test_combine_rejects_codes_that_are_not_two_bit_integers():
         combine_half_turn_deg([10.0], [4])
     with pytest.raises(DesignValueError, match="code"):
         combine_half_turn_deg([10.0], [1.5])
+
+
+def _circular_diff_deg(a, b, period=360.0):
+    return np.abs(np.mod(np.asarray(a, dtype=float) - b + 0.5 * period, period) - 0.5 * period)
+
+
+def test_full_turn_stays_below_360_next_to_the_wrap():
+    # Fine angles one or two rounding steps below 180° (a sin reading just below zero)
+    # combined with the second half must not round up to 360°.
+    x = np.ones(6)
+    y = np.array([-1e-300, -5e-324, -1e-17, -1e-16, -1e-15, -1e-14])
+    for code in GRAY_SEQUENCE:
+        for dtype in (np.float64, np.float32):
+            got = decode_full_turn_deg(x, y, code, dtype=dtype)
+            assert got.min() >= 0.0 and got.max() < 360.0
+            assert np.max(_circular_diff_deg(got, 0.0, 180.0)) < (1e-12 if dtype is np.float64 else 1e-4)
+    fine = [np.nextafter(180.0, 0.0), np.nextafter(360.0, 0.0), -1e-20, np.nextafter(-180.0 * 7, 0.0)]
+    for code in GRAY_SEQUENCE:
+        got = combine_half_turn_deg(fine, code)
+        assert got.min() >= 0.0 and got.max() < 360.0
+
+
+def test_exact_ties_take_the_half_reported_by_latch_g1():
+    # Fine 135° with quadrant 0 (centre 45°): 135° and 315° are both 90° away; g1 = 0 -> 135°.
+    # The same fine angle with quadrant 2 (g1 = 1) -> 315°. Fine 45° with quadrant 1 -> 45°,
+    # with quadrant 3 -> 225°.
+    cases = [(135.0, 0, 135.0), (135.0, 2, 315.0), (45.0, 1, 45.0), (45.0, 3, 225.0)]
+    for fine, quadrant, expected in cases:
+        for dtype in (np.float64, np.float32):
+            got = combine_half_turn_deg(fine, quadrant_to_gray(quadrant), dtype=dtype)
+            assert float(got) == expected
+
+
+def test_combine_folds_fine_angles_far_outside_the_half_turn():
+    # Source: math.fmod (exact) as oracle for the reduction modulo 180°.
+    rng = np.random.default_rng(8)
+    fine = np.concatenate([rng.uniform(-1e4, 1e4, 50_000),
+                           np.nextafter(np.arange(-40, 41) * 180.0, -np.inf),
+                           np.nextafter(np.arange(-40, 41) * 180.0, np.inf)])
+    code = rng.integers(0, 4, fine.size)
+    got = combine_half_turn_deg(fine, code)
+    assert got.min() >= 0.0 and got.max() < 360.0
+    ref = np.array([math.fmod(f, 180.0) for f in fine])
+    assert np.max(_circular_diff_deg(got, ref, 180.0)) < 1e-9
+    # The pick still lies within 90° of the reported quadrant's centre.
+    centre = 90.0 * gray_to_quadrant(code) + 45.0
+    assert np.max(_circular_diff_deg(got, centre)) <= 90.0 + 1e-9
+
+
+def test_code_dtype_and_broadcasting_do_not_change_the_result():
+    rng = np.random.default_rng(5)
+    x, y = rng.normal(size=5000), rng.normal(size=5000)
+    code = rng.integers(0, 4, 5000)
+    ref = decode_full_turn_deg(x, y, code.astype(np.uint8))
+    for c in (code, code.astype(np.int8), code.astype(np.uint16), code.astype(float)):
+        np.testing.assert_array_equal(decode_full_turn_deg(x, y, c), ref)
+    np.testing.assert_array_equal(decode_full_turn_deg(x, y, 2),
+                                  decode_full_turn_deg(x, y, np.full(5000, 2)))
+    grid = decode_full_turn_deg(x.reshape(50, 100), y.reshape(50, 100), code.reshape(50, 100))
+    np.testing.assert_array_equal(grid.ravel(), ref)
+
+
+def test_float32_full_turn_agrees_with_float64_within_1e_4_deg_over_the_whole_turn():
+    # Source: the float64 path as oracle; float32 rounding of a 0–360° result is at most
+    # half of 2**-15 deg ≈ 1.5e-5 deg per step, well inside 1e-4 deg.
+    sensor = BridgeSensor(amplitude_mV=50.0, offset_x_mV=0.5, offset_y_mV=-0.3,
+                          gain_mismatch=0.01, phase_error_deg=0.5, noise_rms_mV=0.05,
+                          adc_bits=12, adc_full_scale_mV=200.0)
+    latches = QuadrantLatches(switch_point_tolerance_deg=5.0, hysteresis_deg=4.0)
+    theta = np.concatenate([np.linspace(-360.0, 360.0, 720_001), np.linspace(360.0, -360.0, 7201)])
+    x, y = sensor.signals(theta)
+    code = latches.code(theta)
+    f64 = decode_full_turn_deg(x, y, code)
+    f32 = decode_full_turn_deg(x, y, code, dtype=np.float32)
+    assert f64.dtype == np.float64 and f32.dtype == np.float32
+    assert f32.min() >= 0.0 and f32.max() < 360.0
+    assert np.max(_circular_diff_deg(f32, f64)) < 1e-4
+    # The float32 two-step path gives exactly the fused float32 result, as in float64.
+    np.testing.assert_array_equal(
+        combine_half_turn_deg(decode_deg(x, y, dtype=np.float32), code, dtype=np.float32), f32)
+
+
+@pytest.mark.parametrize("fn, args", [
+    (decode_full_turn_deg, ([1.0], [0.0], [0])),
+    (combine_half_turn_deg, ([10.0], [0])),
+])
+def test_full_turn_rejects_other_working_precisions(fn, args):
+    with pytest.raises(DesignValueError, match="dtype"):
+        fn(*args, dtype=np.float16)
+    with pytest.raises(TypeError):
+        fn(*args, precision=np.float32)

@@ -1,6 +1,7 @@
 """AMR bridge signal model and angle decode."""
 
 import dataclasses
+import math
 import subprocess
 import sys
 
@@ -173,3 +174,72 @@ def test_importing_sensor_modules_loads_no_symbolic_or_widget_package():
             "print(bad); sys.exit(1 if bad else 0)")
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert done.returncode == 0, done.stdout + done.stderr
+
+
+def _circular_diff_deg(a, b, period):
+    return np.abs(np.mod(np.asarray(a, dtype=float) - b + 0.5 * period, period) - 0.5 * period)
+
+
+def test_decode_matches_math_atan2_oracle_across_blocks_and_signs():
+    # Source: Python's math.atan2 (C99 atan2) as oracle, θ = ½·atan2(y, x) mod 180°.
+    rng = np.random.default_rng(11)
+    n = 150_000  # spans several internal blocks (2**16 samples each) and a partial one
+    x = rng.normal(size=n) * 10.0 ** rng.integers(-3, 4, n)
+    y = rng.normal(size=n) * 10.0 ** rng.integers(-3, 4, n)
+    got = decode_deg(x, y)
+    idx = rng.choice(n, 4000, replace=False)
+    ref = np.array([0.5 * math.degrees(math.atan2(y[i], x[i])) % 180.0 for i in idx])
+    assert np.max(_circular_diff_deg(got[idx], ref, 180.0)) < 1e-12
+    assert got.dtype == np.float64 and got.min() >= 0.0 and got.max() < 180.0
+
+
+def test_decode_of_signed_zeros_and_tiny_sin_readings_stays_in_range():
+    # A negative zero from ADC rounding must read 0°, not 180° or -0°.
+    got = decode_deg([1.0, 1.0, -1.0, -1.0, 0.0], [0.0, -0.0, 0.0, -0.0, -0.0])
+    np.testing.assert_array_equal(got, [0.0, 0.0, 90.0, 90.0, 0.0])
+    assert not np.signbit(got).any()
+    # A sin reading just below zero is an angle just below 180°: it must stay below
+    # 180° and leave room for the +180° of the half-turn combine.
+    near = decode_deg([1.0, 1.0], [-1e-300, -1e-17])
+    assert np.all(near < 180.0) and np.all(near + 180.0 < 360.0)
+    assert np.all(_circular_diff_deg(near, 180.0, 180.0) < 1e-13)
+
+
+def test_float32_decode_agrees_with_float64_within_1e_4_deg_over_the_whole_turn():
+    # Source: the float64 path as oracle; float32 rounding is 2**-24 relative, so
+    # about 1.5e-5 deg near 180° (one step of the result), well inside 1e-4 deg.
+    theta = np.linspace(0.0, 360.0, 720_001)
+    for sensor in (BridgeSensor(amplitude_mV=50.0),
+                   BridgeSensor(amplitude_mV=50.0, offset_x_mV=0.5, gain_mismatch=0.01,
+                                phase_error_deg=0.5, noise_rms_mV=0.05, adc_bits=12,
+                                adc_full_scale_mV=200.0),
+                   BridgeSensor(amplitude_mV=1e-3), BridgeSensor(amplitude_mV=1e5)):
+        x, y = sensor.signals(theta)
+        f32 = decode_deg(x, y, dtype=np.float32)
+        assert f32.dtype == np.float32
+        assert f32.min() >= 0.0 and f32.max() < 180.0
+        assert np.max(_circular_diff_deg(f32, decode_deg(x, y), 180.0)) < 1e-4
+        # float32 samples in give the same answer as float64 samples cast on the way.
+        np.testing.assert_array_equal(
+            decode_deg(x.astype(np.float32), y.astype(np.float32), dtype=np.float32), f32)
+
+
+def test_decode_default_precision_stays_float64():
+    x = np.array([1.0, 0.3, -2.0], dtype=np.float32)
+    y = np.array([0.5, -1.0, 0.1], dtype=np.float32)
+    got = decode_deg(x, y)
+    assert got.dtype == np.float64
+    np.testing.assert_array_equal(got, decode_deg(x.astype(float), y.astype(float)))
+    assert BridgeSensor().decode_deg(1.0, 1.0).dtype == np.float64
+    assert BridgeSensor().decode_deg(1.0, 1.0, dtype=np.float32).dtype == np.float32
+
+
+@pytest.mark.parametrize("dtype", [np.float16, np.int64, "complex128", "fast", None])
+def test_decode_rejects_other_working_precisions(dtype):
+    with pytest.raises(DesignValueError, match="dtype"):
+        decode_deg([1.0], [0.0], dtype=dtype)
+
+
+def test_decode_rejects_unknown_keyword():
+    with pytest.raises(TypeError):
+        decode_deg([1.0], [0.0], precision=np.float32)

@@ -87,20 +87,36 @@ def electrical_deg(x_mV, y_mV) -> np.ndarray:
     return np.mod(phi, 360.0)
 
 
-def decode_deg(x_mV, y_mV) -> np.ndarray:
+def decode_deg(x_mV, y_mV, *, dtype=np.float64) -> np.ndarray:
     """Mechanical angle modulo 180° from the cos bridge ``x`` and the sin bridge ``y``.
 
     θ = ½·atan2(y, x) mod 180°. Units of ``x`` and ``y`` only need to agree.
 
+    Parameters
+    ----------
+    x_mV, y_mV : array_like
+        cos and sin bridge samples (mV, or any common unit).
+    dtype : numpy.float64 or numpy.float32
+        Working and result precision. The default float64 agrees with
+        ``math.atan2`` to about 1e-13 deg. float32 is meant for long ADC
+        recordings: about 1.5-2 times faster from float64 samples (more from
+        float32 samples, which skip the casts) and within 3.1e-5 deg of the
+        float64 result (two float32 steps near 180°), far below the angle
+        step of a 16-bit ADC (about 0.0009 deg of shaft angle for a
+        full-scale signal, more for smaller ones). Inputs are
+        rounded to float32, so magnitudes outside about 1e-38..3e38 lose
+        their angle.
+
     Returns
     -------
     numpy.ndarray
-        Mechanical angle in degrees, in [0, 180).
+        Mechanical angle in degrees, in [0, 180), of the chosen dtype.
     """
-    x, y = np.broadcast_arrays(np.asarray(x_mV, dtype=float), np.asarray(y_mV, dtype=float))
-    out = np.empty(x.shape)
+    dt = _work_dtype(dtype)
+    x, y = np.broadcast_arrays(_float_input(x_mV), _float_input(y_mV))
+    out = np.empty(x.shape, dtype=dt)
     xf, yf, of = x.ravel(), y.ravel(), out.reshape(-1)
-    buf = np.empty(min(_BLOCK, of.size))
+    buf = np.empty(min(_BLOCK, of.size), dtype=dt)
     for start in range(0, of.size, _BLOCK):
         stop = min(of.size, start + _BLOCK)
         decode_block_deg(xf[start:stop], yf[start:stop], of[start:stop], buf[:stop - start])
@@ -108,28 +124,75 @@ def decode_deg(x_mV, y_mV) -> np.ndarray:
 
 
 # Work in cache-sized blocks with preallocated buffers: on large arrays this is
-# several times faster than whole-array temporaries (and than np.mod).
-_BLOCK = 1 << 15
+# several times faster than whole-array temporaries (and than np.mod). 2**16 samples
+# (0.5 MB per float64 array) keeps the working set in cache while the fixed cost of
+# the dozen or so ufunc calls per block stays small; 2**15 measured 10-15 % slower.
+_BLOCK = 1 << 16
+_WORK_DTYPES = (np.dtype(np.float64), np.dtype(np.float32))
 _RAD_TO_HALF_DEG = 90.0 / math.pi
-_BELOW_180 = float(np.nextafter(180.0, 0.0))
+# Largest decoded angle: two steps below 180°, so that a + 180° still rounds below 360°
+# (one step below 180° plus 180° is a tie that rounds up to 360°).
+_FINE_MAX_DEG = {dt: np.nextafter(np.nextafter(dt.type(180.0), dt.type(0.0)), dt.type(0.0))
+                for dt in _WORK_DTYPES}
+
+
+def _work_dtype(dtype) -> np.dtype:
+    """The working float dtype named by ``dtype`` (float64 or float32), else DesignValueError."""
+    # np.dtype(None) means float64 and a dtype compares equal to None, so test for it first.
+    if dtype is not None:
+        try:
+            dt = np.dtype(dtype)
+        except TypeError:
+            pass
+        else:
+            for allowed in _WORK_DTYPES:
+                if dt == allowed:
+                    return allowed
+    raise DesignValueError("dtype", dtype, "numpy.float64 or numpy.float32")
+
+
+def _float_input(values) -> np.ndarray:
+    """``values`` as a float32 or float64 array (other types become float64), without copying floats."""
+    arr = np.asarray(values)
+    if arr.dtype not in _WORK_DTYPES:
+        arr = arr.astype(np.float64)
+    return arr
 
 
 def decode_block_deg(x, y, out, buf):
     """Write ½·atan2(y, x) mod 180° (deg, in [0, 180)) into ``out``.
 
-    ``buf`` is scratch of the same size. Building block of :func:`decode_deg`
-    for callers that fuse further steps. Uses ½·atan2(−y, −x) + 90°, which
-    lands in [0, 180] without a branch; y is first normalised so that a
-    negative zero cannot turn 0° into 180°, and the one value that can still
-    round up to 180° (an angle within 1e-14° below it) is kept just below.
+    ``out`` (float32 or float64) sets the working precision; ``buf`` is
+    scratch of the same size and dtype. Building block of :func:`decode_deg`
+    for callers that fuse further steps.
+
+    a = ½·atan2(y, x) in [−90°, 90°]; 180° is added where a < 0 and 0 is
+    added everywhere else, which also turns a −0° (from y = −0.0) into +0°.
+    Results are capped two rounding steps below 180°: a negative angle so
+    small that a + 180° rounds up to 180° stays below it, and a + 180° in
+    the half-turn combine stays below 360°. atan2 reads the inputs directly
+    (they are copied to the working dtype first only when it differs).
     """
-    np.negative(x, out=out)
-    np.add(y, 0.0, out=buf)          # -0.0 -> +0.0
-    np.negative(buf, out=buf)
-    np.arctan2(buf, out, out=out)
+    n = out.size
+    if x.dtype != out.dtype:
+        # A plain copy casts faster than a casting ufunc.
+        np.copyto(buf, x, casting="same_kind")
+        x = buf
+    if y.dtype != out.dtype:
+        np.copyto(out, y, casting="same_kind")
+        y = out
+    np.arctan2(y, x, out=out)
+    half_turn = buf.view(np.uint8)[:n]   # buf is free again after atan2
+    np.less(out, 0.0, out=half_turn.view(np.bool_))
+    np.multiply(half_turn, 180, out=half_turn)
     np.multiply(out, _RAD_TO_HALF_DEG, out=out)
-    np.add(out, 90.0, out=out)
-    np.minimum(out, _BELOW_180, out=out)
+    # An unmasked add of 0 or 180 stays fast on scattered signs and clears -0.0.
+    np.add(out, half_turn, out=out)
+    # The cap is almost never hit: a compare plus a masked minimum beats a full minimum.
+    cap = _FINE_MAX_DEG[out.dtype]
+    over = half_turn.view(np.bool_)
+    np.greater(out, cap, out=over)
+    np.minimum(out, cap, out=out, where=over)
     return out
 
 
@@ -291,9 +354,9 @@ class BridgeSensor:
         code = np.clip(np.rint(np.asarray(v_mV, dtype=float) / step), -half, half - 1)
         return code * step
 
-    def decode_deg(self, x_mV, y_mV) -> np.ndarray:
+    def decode_deg(self, x_mV, y_mV, *, dtype=np.float64) -> np.ndarray:
         """Mechanical angle in [0, 180) from raw bridge outputs (see :func:`decode_deg`)."""
-        return decode_deg(x_mV, y_mV)
+        return decode_deg(x_mV, y_mV, dtype=dtype)
 
     def _waveform(self, u):
         w = np.sin(u)
