@@ -13,7 +13,9 @@ covering most of the timeline, every poll inside a burst decoded):
   the same length, the practical limit of any array code.
 
 Then a 10-year timeline at a 10 ms poll period with motion 0.1 % of the time
-(about 3e10 polls, 3e7 of them during motion).
+(about 3e10 polls, 3e7 of them during motion), and the same 10 years on an
+adaptive schedule (100 ms slow, 10 ms fast, 2 s hold; guess policy, since the
+bursts outrun the slow period), whose cost follows the number of bursts.
 """
 
 from __future__ import annotations
@@ -28,7 +30,7 @@ import numpy as np
 
 from turnkit.counter import CounterSettings
 from turnkit.motion import BackDriveBursts
-from turnkit.schedule import FixedSchedule
+from turnkit.schedule import AdaptiveSchedule, FixedSchedule
 from turnkit.simulation import simulate
 
 PERIOD_S = 0.01
@@ -121,6 +123,16 @@ def main(argv=None) -> None:
     print(f"  polls on the timeline {result.poll_count:,.0f}; polls during motion ~{moving_s / PERIOD_S:,.0f}")
     print(f"  median wall time {ten_s:.2f} s; final count error {result.final_count_error}; "
           f"ambiguous {len(result.ambiguous_events)}; silent {result.silent_error_count}")
+
+    adaptive = AdaptiveSchedule(0.1, PERIOD_S, 2.0)
+    guess = CounterSettings(32, ambiguous_policy="guess_last_direction")
+    result = simulate(bursts, adaptive, 10 * YEAR_S, guess)
+    ad_s = median_time(lambda: simulate(bursts, adaptive, 10 * YEAR_S, guess), 1 if args.quick else 3)
+    print(f"10-year timeline, adaptive schedule (100 ms slow, {PERIOD_S * 1e3:g} ms fast, 2 s hold), "
+          f"guess policy")
+    print(f"  polls {result.poll_count:,} ({result.fast_poll_count:,} fast); median wall time {ad_s:.2f} s "
+          f"= {ad_s / bursts.burst_count * 1e6:.0f} us per burst; ambiguous {len(result.ambiguous_events)}; "
+          f"silent {result.silent_error_count}; final count error {result.final_count_error}")
 
 
 if __name__ == "__main__":

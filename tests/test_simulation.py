@@ -407,3 +407,68 @@ def test_fast_motion_every_error_matches_the_oracle(multiple, sign, phase, ampli
     res = check_against_oracle(profile, period, 1.0, policy)
     if multiple > 1.05:
         assert len(res.ambiguous_events) + res.silent_error_count > 0 or res.final_count_error == 0
+
+
+# --------------------------------------------- shortcuts against the general path
+def assert_same_result(a, b):
+    """Every field of two SimulationResults equal, arrays element by element and in dtype."""
+    for name in type(a).__slots__:
+        x, y = getattr(a, name), getattr(b, name)
+        if hasattr(x, "times_s"):
+            assert np.array_equal(x.times_s, y.times_s), name
+            assert np.array_equal(x.true_steps, y.true_steps), name
+        elif isinstance(x, np.ndarray):
+            assert x.dtype == y.dtype and np.array_equal(x, y), name
+        else:
+            assert x == y, name
+
+
+def general_path(profile, sch, duration, settings, trace_window_s=None):
+    """The same run with the adaptive one-burst shortcuts switched off."""
+    from turnkit import simulation
+
+    return simulation._Run(profile, sch, duration, settings, (), True, trace_window_s, 20_000,  # noqa: SLF001
+                           1 << 16, lean=False).execute()
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.integers(0, 10_000), st.floats(1, 3000), st.floats(0.05, 6), st.sampled_from([0.0, 0.05, 0.4, 3.0]),
+       st.sampled_from(["flag_and_hold", "guess_last_direction"]), st.sampled_from([4, 8, 32]),
+       st.sampled_from(["wrap", "saturate", "fault"]), st.booleans(), st.sampled_from([None, (50.0, 52.0)]))
+def test_adaptive_burst_shortcut_gives_the_general_result(seed, top_rpm, longest_s, hold, policy, width, overflow,
+                                                          with_other_motion, window):
+    # Random bursts from barely moving to far beyond the slow bound (multi-step
+    # reads, ambiguous and silent ones), holds shorter and longer than the
+    # gaps, narrow counters that overflow, other motion mixed in, and the
+    # trace window on the first burst or in the middle of the run.
+    bursts = BackDriveBursts(2000, 0.5, top_rpm, 0.02, longest_s, 120.0, seed=seed, start_angle_deg=seed % 360)
+    profile = CombinedMotion((bursts, Vibration(60.0, 3.0, start_s=30.0, duration_s=5.0),
+                              TrapezoidMove(720.0, 300.0, 3000.0, start_s=70.0))) if with_other_motion else bursts
+    sch = AdaptiveSchedule(0.1, 0.01, hold, wake_time_s=0, settle_time_s=0, poll_time_s=0)
+    s = CounterSettings(width, ambiguous_policy=policy, overflow_policy=overflow)
+    assert_same_result(simulate(profile, sch, 120.0, s, trace_window_s=window),
+                       general_path(profile, sch, 120.0, s, trace_window_s=window))
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.integers(0, 10_000), st.floats(100, 90_000), st.floats(0.01, 2), st.floats(0.0, 8),
+       st.lists(st.floats(-5, 130), min_size=1, max_size=300), st.booleans())
+def test_sorted_burst_angles_match_the_per_time_formula(seed, rate, shortest_s, extra_s, times, on_edges):
+    # angle_deg_sorted merges burst starts into the times and fills the tails
+    # after each burst; the reference looks up every time on its own and
+    # clamps with min(t, end). A time exactly on a burst start belongs to the
+    # stretch before it (the burst has not moved yet). Both must agree bit for
+    # bit, also exactly on burst starts and ends.
+    bursts = BackDriveBursts(rate, 1, 3000, shortest_s, shortest_s + extra_s, 100.0, seed=seed, start_s=seed % 3,
+                             start_angle_deg=float(seed % 97))
+    t = np.array(times)
+    if on_edges:
+        t = np.concatenate((t, bursts.starts_s[:50], bursts.ends_s[:50]))
+    t = np.sort(t)
+    starts, ends, speeds = bursts.starts_s, bursts.ends_s, bursts.speeds_deg_per_s
+    before = bursts.start_angle_deg + np.concatenate(([0.0], np.cumsum(speeds * (ends - starts))))
+    row = np.searchsorted(starts, t, side="left")  # bursts started strictly before t
+    s0, e0, v0 = (np.concatenate(([0.0], x)) for x in (starts, ends, speeds))
+    b0 = np.concatenate(([bursts.start_angle_deg], before[:-1]))
+    reference = (np.minimum(t, e0[row]) - s0[row]) * v0[row] + b0[row]
+    assert np.array_equal(bursts.angle_deg_sorted(t), reference)

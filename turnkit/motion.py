@@ -96,6 +96,12 @@ class MotionProfile:
         """:meth:`angle_deg` for increasing times; profiles may do this faster."""
         return self.angle_deg(t_s)
 
+    def _angle_deg_into(self, t_s: np.ndarray, out: np.ndarray) -> np.ndarray:
+        """:meth:`angle_deg_sorted` of a float64 array, written into ``out`` where the
+        profile can do so without temporaries of its own; returns the result
+        (``out`` or a new array). Values are bit-identical to ``angle_deg_sorted``."""
+        return self.angle_deg_sorted(t_s)
+
     def motion_intervals(self) -> tuple[np.ndarray, np.ndarray]:
         return np.empty(0), np.empty(0)
 
@@ -383,9 +389,12 @@ class BackDriveBursts(MotionProfile):
         object.__setattr__(self, "ends_s", ends)
         object.__setattr__(self, "speeds_deg_per_s", speeds)
         object.__setattr__(self, "_base_deg", base)
-        object.__setattr__(self, "_tables", (
-            np.concatenate(([self.start_angle_deg], base[:-1])), np.concatenate(([0.0], speeds)), np.concatenate(([0.0], starts)),
-            np.concatenate(([0.0], ends))))
+        b0 = np.concatenate(([self.start_angle_deg], base[:-1]))
+        v0 = np.concatenate(([0.0], speeds))
+        s0 = np.concatenate(([0.0], starts))
+        e0 = np.concatenate(([0.0], ends))
+        # Angle held after each burst, as b + v·(min(t, e) − s) gives it for t ≥ e.
+        object.__setattr__(self, "_tables", (b0, v0, s0, e0, (e0 - s0) * v0 + b0))
 
     @property
     def burst_count(self) -> int:
@@ -401,7 +410,7 @@ class BackDriveBursts(MotionProfile):
         i = np.searchsorted(self.starts_s, t, side="right")
         # Index 0 of the extended tables stands for "before the first burst"
         # (zero speed), so no masking is needed.
-        b0, v0, s0, e0 = self._tables
+        b0, v0, s0, e0, _ = self._tables
         out = np.minimum(t, e0.take(i))
         out -= s0.take(i)
         out *= v0.take(i)
@@ -413,17 +422,50 @@ class BackDriveBursts(MotionProfile):
         t = np.asarray(t_s, dtype=np.float64)
         if t.size == 0:
             return np.empty(0)
+        return self._angle_deg_into(t, np.empty(t.shape))
+
+    def _angle_deg_into(self, t, out):
+        starts = self.starts_s
+        if starts.size == 0:
+            return self.angle_deg(t)
         # Merge the few burst starts inside [t[0], t[-1]] into the times
-        # instead of a binary search per time.
-        lo = int(np.searchsorted(self.starts_s, t[0], side="right"))
-        hi = int(np.searchsorted(self.starts_s, t[-1], side="right"))
-        cut = np.searchsorted(t, self.starts_s[lo:hi], side="right")
-        runs = np.diff(cut, prepend=0, append=t.size)
-        b0, v0, s0, e0 = (x[lo:hi + 1] for x in self._tables)
-        out = np.minimum(t, np.repeat(e0, runs))
-        out -= np.repeat(s0, runs)
-        out *= np.repeat(v0, runs)
-        out += np.repeat(b0, runs)
+        # instead of a binary search per time: run r of the times lies in
+        # table row lo + r (row 0 stands for "before the first burst", zero
+        # speed). Times past the end of their burst form the run's tail and
+        # hold the end angle, computed exactly as min(t, end) would give it.
+        b0, v0, s0, e0, held = self._tables
+        n = t.size
+        lo, hi = starts.searchsorted((t[0], t[-1]), side="right").tolist()
+        if hi == lo:
+            np.subtract(t, s0[lo], out=out)
+            out *= v0[lo]
+            out += b0[lo]
+            j = int(t.searchsorted(e0[lo], side="right"))
+            if j < n:
+                out[j:] = held[lo]
+            return out
+        rows = slice(lo, hi + 1)
+        bounds = np.empty(hi - lo + 2, dtype=np.int64)
+        bounds[0] = 0
+        bounds[1:-1] = t.searchsorted(starts[lo:hi], side="right")
+        bounds[-1] = n
+        run_end = bounds[1:]
+        runs = run_end - bounds[:-1]
+        # One run-length temporary alive at a time keeps the C heap steady.
+        np.subtract(t, s0[rows].repeat(runs), out=out)
+        out *= v0[rows].repeat(runs)
+        out += b0[rows].repeat(runs)
+        tail = t.searchsorted(e0[rows], side="right")
+        np.minimum(tail, run_end, out=tail)
+        n_tail = run_end - tail
+        longest = int(np.maximum.reduce(n_tail))
+        if longest == 1:
+            one = n_tail.astype(bool)
+            out[tail[one]] = held[rows][one]
+        elif longest > 1:
+            ahead = np.cumsum(n_tail) - n_tail
+            idx = np.repeat(tail - ahead, n_tail) + np.arange(int(ahead[-1] + n_tail[-1]))
+            out[idx] = np.repeat(held[rows], n_tail)
         return out
 
     def motion_intervals(self):
@@ -635,6 +677,9 @@ class AtOutput(MotionProfile):
 
     def angle_deg_sorted(self, t_s):
         return self._scale * self.profile.angle_deg_sorted(t_s)
+
+    def _angle_deg_into(self, t_s, out):
+        return np.multiply(self.profile._angle_deg_into(t_s, out), self._scale, out=out)
 
     def motion_intervals(self):
         return self.profile.motion_intervals()

@@ -27,11 +27,13 @@ codes and licensed practice, and re-home after any fault or battery event.
 from __future__ import annotations
 
 import math
+import threading
 from dataclasses import dataclass
 
 import numpy as np
 
 from .counter import (
+    AMBIGUOUS,
     AmbiguousPolicy,
     CounterMode,
     CounterSettings,
@@ -51,6 +53,48 @@ __all__ = ["SimulationResult", "StepEvents", "simulate", "quadrant_index", "BOUN
 BOUNDARY_SNAP_QT = 1e-9
 
 _STATES = tuple(m.value for m in CounterMode)
+
+_RAMP = np.arange(1 << 16, dtype=np.float64)
+_RAMP.flags.writeable = False
+
+
+_MIN, _MAX = np.minimum.reduce, np.maximum.reduce
+_WORK = threading.local()
+
+
+def _work_buffers(n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Three float64 work arrays of at least ``n`` elements, reused by every run in this thread.
+
+    Reusing them keeps a chunk's large arrays out of the allocator: freeing
+    and re-allocating several such arrays per chunk makes the C heap give the
+    pages back and fault them in again, which costs more than the arithmetic.
+    """
+    bufs = getattr(_WORK, "buffers", None)
+    if bufs is None or bufs[0].size < n:
+        bufs = tuple(np.empty(n) for _ in range(3))
+        _WORK.buffers = bufs
+    return bufs
+
+
+def _last_nonzero(a: np.ndarray) -> int:
+    """Index of the last non-zero element of ``a``, or −1 (scans back in growing blocks)."""
+    end, block = a.size, 64
+    while end > 0:
+        start = max(end - block, 0)
+        nz = a[start:end].nonzero()[0]
+        if nz.size:
+            return start + int(nz[-1])
+        end, block = start, block * 4
+    return -1
+
+
+def _ramp(n: int) -> np.ndarray:
+    """0, 1, …, n−1 as float64 (a read-only view of a cached array)."""
+    global _RAMP
+    if n > _RAMP.size:
+        _RAMP = np.arange(max(n, 2 * _RAMP.size), dtype=np.float64)
+        _RAMP.flags.writeable = False
+    return _RAMP[:n]
 
 
 def quadrant_index(angle_deg) -> np.ndarray:
@@ -184,8 +228,9 @@ class _EventLog:
 
     def add(self, times, steps):
         if len(times):
-            self.times.append(np.asarray(times, dtype=np.float64))
-            self.steps.append(np.asarray(steps, dtype=np.int64))
+            # Copies: the reads may be views of reused work arrays.
+            self.times.append(np.array(times, dtype=np.float64))
+            self.steps.append(np.array(steps, dtype=np.int64))
 
     def freeze(self) -> StepEvents:
         if not self.times:
@@ -195,7 +240,7 @@ class _EventLog:
 
 def simulate(profile: MotionProfile, schedule, duration_s: float, settings: CounterSettings | None = None,
              *, power_loss_s=(), rehome_on_drive: bool = True, trace_window_s=None,
-             trace_max_polls: int = 20_000, chunk_polls: int = 1 << 15) -> SimulationResult:
+             trace_max_polls: int = 20_000, chunk_polls: int | None = None) -> SimulationResult:
     """Run the counter through the schedule against the motion.
 
     Parameters
@@ -217,8 +262,10 @@ def simulate(profile: MotionProfile, schedule, duration_s: float, settings: Coun
         Window for the plotting arrays; default: the first motion interval.
     trace_max_polls : int
         At most this many reads are kept for plotting.
-    chunk_polls : int
-        Reads decoded per array batch (memory bound).
+    chunk_polls : int, optional
+        Reads decoded per array batch (memory bound). Default 65 536; 32 768
+        for an adaptive schedule with jitter, whose random draws follow the
+        batches (so there the results depend on this value).
 
     Returns
     -------
@@ -235,6 +282,8 @@ def simulate(profile: MotionProfile, schedule, duration_s: float, settings: Coun
     settings = CounterSettings() if settings is None else settings
     if not isinstance(settings, CounterSettings):
         raise DesignValueError("simulate.settings", type(settings).__name__, "a CounterSettings")
+    if chunk_polls is None:
+        chunk_polls = 1 << 15 if isinstance(schedule, AdaptiveSchedule) and schedule.jitter_s else 1 << 16
     if isinstance(chunk_polls, bool) or not isinstance(chunk_polls, int) or chunk_polls < 16:
         raise DesignValueError("simulate.chunk_polls", chunk_polls, "an integer >= 16")
     run = _Run(profile, schedule, float(duration_s), settings, power_loss_s, bool(rehome_on_drive),
@@ -244,11 +293,16 @@ def simulate(profile: MotionProfile, schedule, duration_s: float, settings: Coun
 
 class _Run:
     def __init__(self, profile, schedule, duration, settings, power_loss, rehome, trace_window, trace_max,
-                 chunk):
+                 chunk, lean=True):
         self.profile, self.schedule, self.duration, self.settings = profile, schedule, duration, settings
         self.rehome, self.chunk, self.trace_max = rehome, chunk, trace_max
         self.adaptive = isinstance(schedule, AdaptiveSchedule)
-        self.rng = schedule.rng()
+        self.rng = schedule.rng() if schedule.jitter_s else None  # only jitter draws from it
+        self.t_buf, self.q_buf, self.d_buf = _work_buffers(chunk)
+        self.count_range = (settings.min_count, settings.max_count)
+        # Without jitter the adaptive schedule may take the one-burst shortcuts
+        # (with jitter the random draws must follow the general path exactly).
+        self.lean = self.adaptive and schedule.jitter_s == 0.0 and lean
         s, e = profile.motion_intervals()
         s, e = merge_intervals(np.clip(s, 0.0, duration), np.clip(e, 0.0, duration))
         self.motion_s, self.motion_e = s, e
@@ -370,7 +424,8 @@ class _Run:
         while t < t_b:
             if self.fast:
                 self.fast_end = None
-                stop = self._poll_windows(t, t_b, self.fast_anchor, sch.fast_period_s, "fast")
+                stop = None if self.lean and self._one_burst_fast(t, t_b) else \
+                    self._poll_windows(t, t_b, self.fast_anchor, sch.fast_period_s, "fast")
                 if stop is not None:
                     self.fast_polls += grid_count(t, stop, self.fast_anchor, sch.fast_period_s)
                     self.t_fault += t_b - stop
@@ -388,7 +443,8 @@ class _Run:
                 t = end
             else:
                 self.change_at = None
-                stop = self._poll_windows(t, t_b, self.slow_anchor, sch.poll_period_s, "until_change")
+                stop = None if self.lean and self._one_burst_slow(t, t_b) else \
+                    self._poll_windows(t, t_b, self.slow_anchor, sch.poll_period_s, "until_change")
                 if stop is not None:
                     self.slow_polls += grid_count(t, stop, self.slow_anchor, sch.poll_period_s)
                     self.t_fault += t_b - stop
@@ -402,6 +458,159 @@ class _Run:
                 self.fast_anchor = tc_nominal
                 self.fast_until = tc + sch.hold_s
                 t = tc_nominal
+
+    # ------------------------------------------- adaptive: one burst at a time
+    # The common adaptive case is a burst seen first on the slow schedule, then
+    # followed on the fast one until the hold expires in the idle gap after it.
+    # These two methods handle exactly that with a few array operations and no
+    # generality; whenever anything else happens (a read of more than one
+    # step, a range limit, the hold reaching into the next burst, the trace
+    # window) they change nothing and return False, and _poll_windows does
+    # the work. They give the same state as _poll_windows in every case they
+    # accept.
+
+    def _burst_reads(self, anchor, period, k_lo, k_hi):
+        n = k_hi - k_lo + 1
+        times = np.add(_ramp(n), float(k_lo), out=self.t_buf[:n])
+        times *= period
+        if anchor != 0.0:
+            times += anchor
+        q = self.q_buf[:n]
+        np.multiply(self.profile._angle_deg_into(times, q), 1.0 / 90.0, out=q)  # noqa: SLF001
+        q += BOUNDARY_SNAP_QT
+        np.floor(q, out=q)
+        d = self.d_buf[:n]
+        d[0] = q[0] - self.q_ref
+        np.subtract(q[1:], q[:-1], out=d[1:])
+        return times, q, d
+
+    def _burst_grid(self, i, t_a, t_b, anchor, period):
+        """Grid index range of polls in motion interval ``i`` (from ``t_a``), or None."""
+        s = max(float(self.motion_s[i]), t_a)
+        e = min(float(self.motion_e[i]), t_b)
+        k_lo = max(math.floor((s - anchor) / period + GRID_TOLERANCE) + 1, 1)
+        k_hi = min(math.floor((e - anchor) / period + GRID_TOLERANCE) + 1,
+                   math.floor((t_b - anchor) / period + GRID_TOLERANCE))
+        if k_hi < k_lo or k_hi - k_lo >= self.chunk:
+            return None
+        return k_lo, k_hi
+
+    def _traced(self, t0, t1):
+        w0, w1 = self.trace_window
+        return self.tr_n < self.trace_max and t0 <= w1 and t1 >= w0
+
+    def _one_burst_slow(self, t_a, t_b) -> bool:
+        """Slow polls up to the first read that sees a step, within one burst."""
+        i0 = int(self.motion_e.searchsorted(t_a, side="right"))
+        if i0 >= int(self.motion_s.searchsorted(t_b, side="left")):
+            return True  # no motion before t_b: change_at stays None
+        grid = self._burst_grid(i0, t_a, t_b, self.slow_anchor, self.schedule.poll_period_s)
+        if grid is None:
+            return False
+        k_lo, k_hi = grid
+        times, q, d = self._burst_reads(self.slow_anchor, self.schedule.poll_period_s, k_lo, k_hi)
+        moved = d.nonzero()[0]
+        if not moved.size:
+            return False
+        # The first read whose change is not a multiple of four quarters ends
+        # the slow phase; reads before it decode as "no change" (wrongly, and
+        # silently, if they moved by four or eight quarters).
+        first = (d[moved].astype(np.int64) & 3).nonzero()[0]
+        if not first.size:
+            return False
+        j = int(moved[first[0]])
+        true_step = int(d[j])
+        decoded = (0, 1, AMBIGUOUS, -1)[true_step & 3]
+        if decoded == AMBIGUOUS:
+            if self.settings.ambiguous_policy is AmbiguousPolicy.FLAG_AND_HOLD:
+                return False
+            step = 2 * (self.last_dir or 1)
+        else:
+            step = decoded
+        c_min, c_max = self.count_range
+        if not c_min <= self.count + step <= c_max or self._traced(times[0], times[j]):
+            return False
+        silent_at = moved[:first[0]]
+        if decoded != AMBIGUOUS and decoded != true_step:
+            silent_at = moved[:first[0] + 1]
+        if decoded == AMBIGUOUS:
+            self.ambiguous.add(times[j:j + 1], [true_step])
+        if silent_at.size:
+            self.silent.add(times[silent_at], d[silent_at])
+        if decoded == AMBIGUOUS or silent_at.size:
+            ev = np.append(silent_at, j) if decoded == AMBIGUOUS else silent_at
+            counts = np.where(ev == j, self.count + step, self.count)
+            self.err_t_arrays.append(times[ev])
+            self.err_v_arrays.append(counts - self._truth(q[ev].astype(np.int64)))
+        self.count += step
+        self.q_ref = int(q[j])
+        self.last_change_s = float(times[j])
+        if decoded != AMBIGUOUS:
+            self.last_dir = decoded
+        self.change_at = (float(times[j]), float(times[j]))
+        return True
+
+    def _one_burst_fast(self, t_a, t_b) -> bool:
+        """Fast polls from ``t_a`` until the hold expires, within one burst and the gap after it."""
+        S = self.motion_s
+        i1 = int(S.searchsorted(t_b, side="left"))
+        i0 = int(self.motion_e.searchsorted(t_a, side="right"))
+        if i0 >= i1:
+            return True  # no motion before t_b: fast_end stays None
+        if self.fast_until < S[i0]:
+            self.fast_end = max(self.fast_until, t_a)
+            return True
+        anchor, period = self.fast_anchor, self.schedule.fast_period_s
+        grid = self._burst_grid(i0, t_a, t_b, anchor, period)
+        if grid is None:
+            return False
+        k_lo, k_hi = grid
+        times, q, d = self._burst_reads(anchor, period, k_lo, k_hi)
+        if _MIN(d) < -1 or _MAX(d) > 1:
+            return False
+        # The hold, as _fast_cut finds it.
+        hold = self.schedule.hold_s
+        seen_at = d.nonzero()[0]
+        x0 = until = self.fast_until
+        if seen_at.size:
+            c = times[seen_at]
+            expiry = np.maximum(x0, np.concatenate(([x0], c[:-1] + hold)))
+            gap = c > expiry
+            if gap.any():
+                end = float(expiry[int(np.argmax(gap))])
+            else:
+                until = max(x0, float(c[-1]) + hold)
+                end = until if until < times[-1] else None
+        else:
+            end = x0 if x0 < times[-1] else None
+        n = times.size
+        if end is not None:
+            n = int(times.searchsorted(end, side="right"))
+            fast_end = end
+        elif i0 + 1 < i1:
+            if not until < S[i0 + 1]:
+                return False  # the next burst starts within the hold
+            fast_end = max(until, t_a)
+        else:
+            fast_end = None
+        if n:
+            c_min, c_max = self.count_range
+            if not (c_min <= self.count - n and self.count + n <= c_max):
+                lo = self.count + int(_MIN(q[:n])) - self.q_ref
+                hi = self.count + int(_MAX(q[:n])) - self.q_ref
+                if lo < c_min or hi > c_max:
+                    return False
+            if self._traced(times[0], times[n - 1]):
+                return False
+            self.count += int(q[n - 1]) - self.q_ref
+            self.q_ref = int(q[n - 1])
+            last = _last_nonzero(d[:n])
+            if last >= 0:
+                self.last_change_s = float(times[last])
+                self.last_dir = int(d[last])
+        self.fast_until = until
+        self.fast_end = fast_end
+        return True
 
     def _poll_windows(self, t_a, t_b, anchor, period, mode):
         """Decode the grid polls ``anchor + k*period`` inside motion intervals in (t_a, t_b].
@@ -420,6 +629,7 @@ class _Run:
         k_cap = math.floor((t_b - anchor) / period + GRID_TOLERANCE)
         k_prev = 0
         group = 4096 if mode == "all" else 1
+        jitter = self.schedule.jitter_s
         w = i0
         while w < i1:
             if mode == "fast" and self.fast_until < S[w]:
@@ -444,26 +654,12 @@ class _Run:
                 before = np.maximum.accumulate(np.concatenate(([k_prev], k_hi)))
                 k_lo = np.maximum(k_lo, before[:-1] + 1)
                 k_prev = int(before[-1])
-            n = np.maximum(k_hi - k_lo + 1, 0)
-            cum = np.cumsum(n)
-            total = int(cum[-1]) if cum.size else 0
-            first_pos = cum - n
-            for p in range(0, total, self.chunk):
-                q_end = min(p + self.chunk, total)
-                if n.size == 1:
-                    k = np.arange(int(k_lo[0]) + p, int(k_lo[0]) + q_end, dtype=np.int64)
-                else:
-                    w0 = int(np.searchsorted(cum, p, side="right"))
-                    w1 = int(np.searchsorted(cum, q_end - 1, side="right")) + 1
-                    c = np.minimum(cum[w0:w1], q_end) - np.maximum(first_pos[w0:w1], p)
-                    kstart = k_lo[w0:w1] + np.maximum(p - first_pos[w0:w1], 0)
-                    excl = np.cumsum(c) - c
-                    k = np.repeat(kstart - excl, c) + np.arange(q_end - p, dtype=np.int64)
-                nominal = anchor + k * period
-                times = self.schedule.jittered(nominal, self.rng)
+            for nominal in self._grid_chunks(k_lo, k_hi, anchor, period):
+                times = nominal if jitter == 0.0 else self.schedule.jittered(nominal, self.rng)
                 # Quadrant index kept in float64 (exact for |index| < 2**53) to
                 # save a conversion pass; _apply converts only when it decodes.
-                q = self.profile.angle_deg_sorted(times) * (1.0 / 90.0)
+                q = self.q_buf[:times.size]
+                np.multiply(self.profile._angle_deg_into(times, q), 1.0 / 90.0, out=q)  # noqa: SLF001
                 q += BOUNDARY_SNAP_QT
                 np.floor(q, out=q)
                 if mode == "fast":
@@ -478,6 +674,53 @@ class _Run:
                 if mode == "fast" and self.fast_end is not None:
                     return None
         return None
+
+    def _grid_chunks(self, k_lo, k_hi, anchor, period):
+        """Nominal poll times ``anchor + k*period`` for k in every range [k_lo, k_hi], in chunks.
+
+        The poll indices are made as float64 (exact below 2**53, and the
+        products equal those of integer indices) from one cached ramp: a chunk
+        inside a single range is one addition, a chunk spanning several ranges
+        one repeat and one addition.
+        """
+        chunk = self.chunk
+        n = np.maximum(k_hi - k_lo + 1, 0)
+        if n.size == 1:
+            total = int(n[0])
+            base = int(k_lo[0])
+            for p in range(0, total, chunk):
+                m = min(chunk, total - p)
+                k = np.add(_ramp(m), float(base + p), out=self.t_buf[:m])
+                k *= period
+                if anchor != 0.0:
+                    k += anchor
+                yield k
+            return
+        keep = n > 0
+        if not keep.all():
+            n, k_lo = n[keep], k_lo[keep]
+        if n.size == 0:
+            return
+        first = np.cumsum(n) - n
+        total = int(first[-1] + n[-1])
+        # Pieces: the ranges, also cut at every chunk boundary. A piece's base
+        # index plus its position in the chunk gives k.
+        starts = np.union1d(first, np.arange(chunk, total, chunk, dtype=np.int64)) if total > chunk else first
+        w = np.searchsorted(first, starts, side="right") - 1
+        lengths = np.diff(starts, append=total)
+        base = (k_lo[w] - first[w] + (starts // chunk) * chunk).astype(np.float64)
+        bounds = np.searchsorted(starts, np.arange(0, total + chunk, chunk, dtype=np.int64)).tolist()
+        for j in range(len(bounds) - 1):
+            a, b = bounds[j], bounds[j + 1]
+            m = min(chunk, total - j * chunk)
+            if b - a == 1:
+                k = np.add(_ramp(m), base[a], out=self.t_buf[:m])
+            else:
+                k = np.add(base[a:b].repeat(lengths[a:b]), _ramp(m), out=self.t_buf[:m])
+            k *= period
+            if anchor != 0.0:
+                k += anchor
+            yield k
 
     def _fast_cut(self, times, q):
         """Where the fast-polling hold expires among these reads (vectorised).
@@ -511,7 +754,7 @@ class _Run:
 
         Returns the nominal time of a read that put the counter in fault, else None.
         """
-        d = np.empty_like(q)
+        d = self.d_buf[:q.size] if q.dtype == np.float64 and q.size <= self.d_buf.size else np.empty_like(q)
         d[0] = q[0] - self.q_ref
         np.subtract(q[1:], q[:-1], out=d[1:])
         if stop_on_change:
@@ -522,16 +765,18 @@ class _Run:
                 times, nominal, q, d = times[:cut], nominal[:cut], q[:cut], d[:cut]
                 self.change_at = (float(nominal[-1]), float(times[-1]))
         st = self.settings
-        if d.size and d.min() >= -1 and d.max() <= 1:
+        n = d.size
+        if n and _MIN(d) >= -1 and _MAX(d) <= 1:
             # Fast path: every read saw at most one step, so the count follows
             # the quadrant index exactly; only the range needs checking.
-            n = d.size  # |count change| <= n; look at the extremes only near a limit
-            if st.min_count <= self.count - n and self.count + n <= st.max_count:
+            c_min, c_max = self.count_range
+            # |count change| <= n; look at the extremes only near a limit.
+            if c_min <= self.count - n and self.count + n <= c_max:
                 lo, hi = self.count, self.count
             else:
-                lo = self.count + int(q.min()) - self.q_ref
-                hi = self.count + int(q.max()) - self.q_ref
-            if lo >= st.min_count and hi <= st.max_count:
+                lo = self.count + int(_MIN(q)) - self.q_ref
+                hi = self.count + int(_MAX(q)) - self.q_ref
+            if lo >= c_min and hi <= c_max:
                 self._follow(times, q, d)
                 return None
         q, d = q.astype(np.int64, copy=False), d.astype(np.int64, copy=False)
@@ -579,10 +824,10 @@ class _Run:
         self.count += int(q[-1]) - self.q_ref
         self.q_ref = int(q[-1])
         if self.adaptive or self.settings.ambiguous_policy is AmbiguousPolicy.GUESS_LAST_DIRECTION:
-            moved = np.flatnonzero(d)
-            if moved.size:
-                self.last_change_s = float(times[moved[-1]])
-                self.last_dir = int(d[moved[-1]])
+            last = _last_nonzero(d)
+            if last >= 0:
+                self.last_change_s = float(times[last])
+                self.last_dir = int(d[last])
         w0, w1 = self.trace_window
         if self.tr_n < self.trace_max and times[0] <= w1 and times[-1] >= w0:
             m = (times >= w0) & (times <= w1)
@@ -650,7 +895,7 @@ class _Run:
             return
         room = self.trace_max - self.tr_n
         t, q, count = t[:room], q[:room], count[:room]
-        self.tr_t.append(np.asarray(t, dtype=np.float64))
+        self.tr_t.append(np.array(t, dtype=np.float64))  # copy: t may view a work array
         self.tr_true.append(self._truth(np.asarray(q)))
         self.tr_count.append(np.asarray(count, dtype=np.int64))
         self.tr_n += len(t)
