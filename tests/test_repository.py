@@ -35,7 +35,11 @@ def test_ci_runs_the_readme_test_command_verbatim():
 
 def test_importing_turnkit_loads_no_symbolic_plotting_or_widget_package():
     code = (
-        "import sys, turnkit, turnkit.gears\n"
+        "import sys, turnkit\n"
+        "import turnkit.gears, turnkit.sensor, turnkit.latches, turnkit.angle_error, turnkit.calibration\n"
+        "import turnkit.counter, turnkit.schedule, turnkit.motion, turnkit.simulation, turnkit.bounds\n"
+        "import turnkit.power, turnkit.battery, turnkit.equations, turnkit.design, turnkit.designfile\n"
+        "import turnkit.result, turnkit.sizing, turnkit.tuning, turnkit.export, turnkit.explore, turnkit.ui\n"
         "bad = [m for m in ('sympy', 'bokeh', 'ipywidgets', 'jupyter_bokeh', 'pint') if m in sys.modules]\n"
         "print(','.join(bad))\n"
     )
