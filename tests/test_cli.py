@@ -395,3 +395,35 @@ def test_summary_prints_on_a_terminal_without_unicode(design_file, monkeypatch):
     sys.stdout.flush()
     text = raw.getvalue().decode("ascii")
     assert "Keep below 60 ?C." in text and "<= 0.05 mm" in text
+
+
+# --- several design files -------------------------------------------------------
+
+_DEMO = Path(__file__).resolve().parents[1] / "demo"
+
+
+def test_size_several_files_into_a_folder_names_each_summary_and_reports_the_worst(tmp_path, capsys):
+    files = [str(_DEMO / f"{n}.toml") for n in ("irrigation-gate-valve", "camera-crane-joint")]
+    status = main(["size", *files, "-o", str(tmp_path / "out"), "--format", "json"])
+    assert status == EXIT_FAIL  # the crane demo fails on purpose
+    written = sorted(p.name for p in (tmp_path / "out").iterdir())
+    assert written == ["camera-crane-joint.json", "irrigation-gate-valve.json"]
+    verdicts = {p.stem: json.loads(p.read_text())["passed"] for p in (tmp_path / "out").iterdir()}
+    assert verdicts == {"irrigation-gate-valve": True, "camera-crane-joint": False}
+
+
+def test_size_several_files_exits_2_when_any_file_is_bad_but_still_sizes_the_rest(tmp_path, capsys):
+    status = main(["size", str(_DEMO / "irrigation-gate-valve.toml"), str(tmp_path / "missing.toml")])
+    captured = capsys.readouterr()
+    assert status == EXIT_ERROR
+    assert "Irrigation gate valve" in captured.out
+    assert "missing.toml" in captured.err
+
+
+def test_size_several_files_refuses_a_file_as_the_output_folder(tmp_path, capsys):
+    target = tmp_path / "summary.html"
+    target.write_text("keep me")
+    files = [str(_DEMO / f"{n}.toml") for n in ("irrigation-gate-valve", "window-shade-winder")]
+    assert main(["size", *files, "-o", str(target)]) == EXIT_ERROR
+    assert target.read_text() == "keep me"
+    assert "folder" in capsys.readouterr().err

@@ -79,9 +79,12 @@ examples:
   turnkit size valve.toml -o valve.json        machine-readable, documented keys
   turnkit size valve.toml -o valve.html --overwrite
   turnkit size valve.toml > /dev/null || echo "a requirement fails"
+  turnkit size designs/*.toml -o summaries/ --format md
+                                               one summary per design file, in a batch
 
 exit status: 0 every requirement and motion scenario passes, 1 any fails,
-2 the design file (or an option) is bad; errors go to stderr."""
+2 the design file (or an option) is bad; errors go to stderr. With several
+files: 2 if any file is bad, else 1 if any design fails, else 0."""
 
 _SCHEMA_EPILOG = """\
 examples:
@@ -133,10 +136,14 @@ def build_parser() -> argparse.ArgumentParser:
                                       "(requirements with PASS/FAIL and margins, simulated motions, derived "
                                       "values, warnings and cautions), or writes it to OUT.",
                           epilog=_SIZE_EPILOG, formatter_class=fmt)
-    size.add_argument("file", metavar="FILE", type=Path, help="the design file (.toml)")
+    size.add_argument("file", metavar="FILE", type=Path, nargs="+",
+                      help="the design file (.toml); several files are sized one after the other")
     size.add_argument("-o", "--output", metavar="OUT", type=Path,
                       help="write the summary here instead of printing it; the extension picks the format: "
-                           ".html, .md, .json or .txt")
+                           ".html, .md, .json or .txt. With several FILEs, OUT is a folder and each summary "
+                           "is named after its design file (format from --format)")
+    size.add_argument("--format", choices=("html", "md", "json", "txt"), default="html",
+                      help="summary format for several FILEs written to a folder (default: html)")
     size.add_argument("--overwrite", action="store_true", help="replace OUT if it exists")
 
     sub.add_parser("schema", help="print the JSON Schema of the design-file format",
@@ -173,7 +180,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         if args.command == "new":
             return _new(args.name, args.dir)
         if args.command == "size":
-            return _size(args.file, args.output, args.overwrite)
+            if len(args.file) == 1:
+                return _size(args.file[0], args.output, args.overwrite)
+            return _size_batch(args.file, args.output, args.format, args.overwrite)
         if args.command == "schema":
             return _schema()
         return _lab(args.notebook, extra)
@@ -313,6 +322,29 @@ def _size(file: Path, output: Path | None, overwrite: bool) -> int:
                                                             if not s.passed]
         print(f"wrote {path} ({verdict}" + (f": {'; '.join(failed)} failed)" if failed else ")"))
     return EXIT_PASS if result.passed else EXIT_FAIL
+
+
+def _size_batch(files: Sequence[Path], folder: Path | None, fmt: str, overwrite: bool) -> int:
+    """Size several design files; the worst outcome sets the exit status."""
+    if folder is not None:
+        if folder.exists() and not folder.is_dir():
+            return _err("size", f"with several design files, -o must name a folder, not the file {folder}")
+        folder.mkdir(parents=True, exist_ok=True)
+    statuses = []
+    for i, file in enumerate(files):
+        if folder is None and i:
+            _write_stdout("\n" + "=" * 78 + "\n\n")
+        out = None if folder is None else folder / f"{file.stem}.{fmt}"
+        try:
+            statuses.append(_size(file, out, overwrite))
+        except (DesignFileError, DesignValueError, TurnkitError, FileExistsError, FileNotFoundError,
+                IsADirectoryError, PermissionError) as exc:
+            message = str(exc) if str(file) in str(exc) else f"{file}: {exc}"
+            print(f"turnkit size: error: {message}", file=sys.stderr)
+            statuses.append(EXIT_ERROR)
+    if EXIT_ERROR in statuses:
+        return EXIT_ERROR
+    return EXIT_FAIL if EXIT_FAIL in statuses else EXIT_PASS
 
 
 def _write_stdout(text: str) -> None:
