@@ -277,3 +277,25 @@ def test_planetary_ring_tunable_keeps_planets_meshing():
     stage = changed.gear_train[0]
     assert stage.ring_teeth == stage.sun_teeth + 2 * stage.planet_teeth
     assert build_train(changed).ratio == (1 + Fraction(51, 15)) * 16
+
+
+def test_electronics_cutoff_above_the_rated_end_voltage_shortens_life(small):
+    # Two Li-FeS2 AA cells: nominal 3.0 V, rated end 1.8 V. A 2.4 V cut-off keeps half (linear stand-in).
+    base = size(small, curves=False)
+    cut = replace(small, power=replace(small.power, cutoff_voltage_V=2.4))
+    result = size(cut, curves=False)
+    assert result.value("usable_fraction_percent").value == pytest.approx(50.0)
+    pack = batt.Pack(batt.cell("li_fes2_aa"), series=2)
+    expected = eq.solve_for("L", C_nom=pack.capacity_mAh, k_T=1.0, u=0.5, s=pack.self_discharge_per_year,
+                            I_avg=result.value("average_current_uA").value / 1e3)
+    assert result.value("battery_life_years").value == pytest.approx(expected, rel=1e-9)
+    assert result.value("battery_life_years").value < base.value("battery_life_years").value
+    assert any("cut-off" in a[0] or "stop at" in a[0] for a in result.assumptions)
+
+
+def test_cutoff_at_or_above_the_nominal_voltage_is_refused_naming_the_field(small):
+    cut = replace(small, power=replace(small.power, cutoff_voltage_V=3.0))
+    with pytest.raises(DesignValueError) as info:
+        size(cut, curves=False)
+    assert info.value.field == "power.cutoff_voltage"
+    assert "3 V" in str(info.value) or "3.0" in str(info.value)

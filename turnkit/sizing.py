@@ -84,6 +84,7 @@ __all__ = [
     "build_battery",
     "build_motion",
     "motor_rpm_for_output_speed",
+    "usable_fraction",
     "output_speed_for_motor_rpm",
     "GENERAL_CAUTIONS",
 ]
@@ -268,6 +269,37 @@ def build_profile(design: ActuatorDesign, supply_voltage_V: float | None = None)
                                 "tracking": c.tracking_uA})
         for c in consumers)
     return power.CurrentProfile(built, supply_voltage_V=supply_voltage_V or 3.0)
+
+
+def usable_fraction(pack, cutoff_voltage_V: float | None) -> float:
+    """Share of the rated capacity delivered above the electronics' cut-off voltage.
+
+    Parameters
+    ----------
+    pack : turnkit.battery.Pack
+        The battery; its rated capacity is to its own end voltage.
+    cutoff_voltage_V : float or None
+        Pack voltage below which the electronics stop, V (None: the pack's end voltage).
+
+    Returns
+    -------
+    float
+        1 at or below the pack's rated end voltage, falling linearly to 0 at its nominal
+        voltage: a cautious stand-in for the discharge curve (common practice), since
+        primary cells deliver most of their charge on a plateau near the nominal voltage.
+
+    Raises
+    ------
+    DesignValueError
+        When the cut-off is at or above the pack's nominal voltage (nothing usable).
+    """
+    if cutoff_voltage_V is None or cutoff_voltage_V <= pack.cutoff_voltage_V:
+        return 1.0
+    if cutoff_voltage_V >= pack.nominal_voltage_V:
+        raise DesignValueError("power.cutoff_voltage", cutoff_voltage_V,
+                               f"below the battery's nominal voltage ({pack.nominal_voltage_V:g} V for "
+                               f"{pack.name})", unit="V", hint="add cells in series or lower the cut-off")
+    return (pack.nominal_voltage_V - cutoff_voltage_V) / (pack.nominal_voltage_V - pack.cutoff_voltage_V)
 
 
 def _motor_deg_per_output(train) -> float:
@@ -651,14 +683,24 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     if req.service_temperature_degC is not None:
         temperature_C = req.service_temperature_degC
     life = None
+    usable = 1.0
     if pack is not None:
+        usable = usable_fraction(pack, design.power.cutoff_voltage_V)
+        if usable < 1.0:
+            assumptions.append((
+                f"The electronics stop at {design.power.cutoff_voltage_V:g} V, above the pack's rated end voltage "
+                f"{pack.cutoff_voltage_V:g} V: usable fraction {usable:.3g}, falling linearly from 1 at the "
+                "rated end voltage to 0 at the nominal voltage (a cautious stand-in for the discharge curve)",
+                "(common practice)"))
         est = batt.estimate_life(pack, budget.average_current_uA, temperature_C=temperature_C,
-                                 peak_current_mA=budget.peak_current_mA)
+                                 usable_fraction=usable, peak_current_mA=budget.peak_current_mA)
         life = est.life_years
         add("battery", "Battery", f"{pack.name}", "", "battery")
         add("battery_capacity_mAh", "Battery nominal capacity", pack.capacity_mAh, "mAh", "battery")
-        add("usable_capacity_mAh", "Usable capacity after temperature derating", est.usable_capacity_mAh, "mAh",
-            "battery", equation="usable_capacity")
+        add("usable_fraction_percent", "Share of the capacity delivered above the electronics' cut-off",
+            100 * usable, "%", "battery")
+        add("usable_capacity_mAh", "Usable capacity after temperature and cut-off derating", est.usable_capacity_mAh,
+            "mAh", "battery", equation="usable_capacity")
         add("battery_life_years", "Battery life", life, "years", "battery", equation="battery_life")
         add("self_discharge_percent", "Share of the capacity lost to self-discharge",
             100 * est.lost_to_self_discharge_mAh / est.usable_capacity_mAh if est.usable_capacity_mAh else 0.0, "%",
@@ -673,7 +715,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
             advice = ""
             try:
                 need_cap = float(batt.capacity_needed_mAh(budget.average_current_uA, req.battery_life_years, pack,
-                                                          temperature_C=temperature_C))
+                                                          temperature_C=temperature_C, usable_fraction=usable))
                 advice = f"a battery of at least {need_cap:.4g} mAh, or a lower average current"
                 if req_speed is not None and max_period_s > schedule.poll_period_s * 1.01:
                     advice += (f"; polling only as often as the back-drive speed needs (every "
@@ -698,7 +740,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     if max_period_s is not None and life is not None and req.battery_life_years is not None:
         life_at_limit = float(batt.life_years(
             pack, power.average_current_uA(profile, **{**sched_kw, "poll_period_s": max_period_s}),
-            temperature_C=temperature_C, warn=False))
+            temperature_C=temperature_C, usable_fraction=usable, warn=False))
         add("life_at_max_poll_period_years", "Battery life at the longest allowed poll period", life_at_limit,
             "years", "battery")
         if life_at_limit < req.battery_life_years:
@@ -707,7 +749,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
                 f"longest that follows {req_speed:g} {out_speed_unit}) lasts only {life_at_limit:.3g} years "
                 f"against {req.battery_life_years:g} required.")
             warns.extend(_relax_lines(profile, pack, schedule, required_rpm, req.battery_life_years, temperature_C,
-                                      train))
+                                      train, usable))
 
     # -- motion scenarios ---------------------------------------------------------
     scenarios: list[Scenario] = []
@@ -735,7 +777,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     if curves:
         curve_list.extend(_curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
                                   max_period_s, required_rpm, req_speed, out_speed_unit, temperature_C,
-                                  guaranteed_rpm, resolution_out, base))
+                                  guaranteed_rpm, resolution_out, base, usable))
 
     eq_keys.extend(["max_trackable_speed", "max_poll_period"])
     text = _design_text(design)
@@ -761,7 +803,8 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     )
 
 
-def _relax_lines(profile, pack, schedule, required_rpm, life_years, temperature_C, train) -> list[str]:
+def _relax_lines(profile, pack, schedule, required_rpm, life_years, temperature_C, train,
+                 usable: float = 1.0) -> list[str]:
     """How far each requirement must move for some poll period to meet both (symbolic model)."""
     from .equations import relax_advice
 
@@ -774,7 +817,7 @@ def _relax_lines(profile, pack, schedule, required_rpm, life_years, temperature_
         advice = relax_advice(
             backdrive_motor_speed_rpm=required_rpm, life_years=life_years, capacity_mAh=pack.capacity_mAh,
             sleep_current_uA=totals["asleep"], awake_current_uA=awake_uA, awake_time_s=t_awake,
-            temperature_derating=float(pack.temperature_factor(temperature_C)),
+            temperature_derating=float(pack.temperature_factor(temperature_C)), usable_fraction=usable,
             self_discharge_per_year=pack.self_discharge_per_year,
             travel_per_turn=float(train.travel_per_motor_turn), output_unit=train.output_unit)
     except DesignValueError as exc:
@@ -785,7 +828,7 @@ def _relax_lines(profile, pack, schedule, required_rpm, life_years, temperature_
 
 
 def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw, max_period_s, required_rpm,
-            req_speed, speed_unit, temperature_C, guaranteed_rpm, resolution_out, base) -> list[Curve]:
+            req_speed, speed_unit, temperature_C, guaranteed_rpm, resolution_out, base, usable=1.0) -> list[Curve]:
     unit = train.output_unit
     out: list[Curve] = []
     period_ms = schedule.poll_period_s * 1e3
@@ -798,9 +841,10 @@ def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
     # (a) life (or current) versus poll period
     if pack is not None:
         lc = power.life_vs_poll_period(profile, pack, poll_period_min_s=lo_s, poll_period_max_s=hi_s, points=120,
-                                       max_allowed_poll_period_s=max_period_s, temperature_C=temperature_C, **kw)
+                                       max_allowed_poll_period_s=max_period_s, temperature_C=temperature_C,
+                                       usable_fraction=usable, **kw)
         current_life = float(batt.life_years(pack, power.average_current_uA(profile, **sched_kw),
-                                             temperature_C=temperature_C, warn=False))
+                                             temperature_C=temperature_C, usable_fraction=usable, warn=False))
         series = (Series("battery life", lc.poll_period_s * 1e3, lc.life_years),)
         marker_y, key, title, ylab, yunit = current_life, "life_vs_poll_period", "Battery life against poll period", \
             "battery life", "years"
