@@ -398,3 +398,11 @@ def test_reversing_the_train_inverts_the_ratio(train):
     assert back.ratio == 1 / train.ratio
     assert back.direction == train.direction
     assert back.reversed().ratio == train.ratio
+
+
+def test_given_forward_efficiency_replaces_the_computed_one_but_not_the_locking_check():
+    screw = LeadScrew(pitch_mm=2, mean_diameter_mm=9.0, forward_efficiency=0.35)
+    assert screw.efficiency == 0.35
+    assert screw.backdrive_efficiency <= 0  # still from lead angle against friction
+    with pytest.raises(DesignValueError, match="forward_efficiency"):
+        LeadScrew(pitch_mm=2, forward_efficiency=1.5)

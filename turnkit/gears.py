@@ -489,11 +489,16 @@ class WormStage:
 
     @property
     def forward_efficiency(self) -> float:
-        """Efficiency in the driving direction (from the lead angle, else ``efficiency``)."""
+        """Efficiency in the driving direction: ``efficiency`` when given, else from the lead angle.
+
+        With neither, 0.5 stands in (common practice for a single-start worm).
+        """
+        if self.efficiency is not None:
+            return float(self.efficiency)
         eff = self._efficiencies()
         if eff is not None:
             return eff[0]
-        return float(self.efficiency) if self.efficiency is not None else 0.5
+        return 0.5
 
     @property
     def backdrive_efficiency(self) -> float:
@@ -607,6 +612,10 @@ class LeadScrew:
         Efficiency of a ball screw both ways (common practice: 0.85-0.95).
     backlash_mm : float
         Axial lost motion of the nut, mm.
+    forward_efficiency : float, optional
+        A measured or catalogue forward efficiency of a sliding screw; when
+        given it replaces the one computed from the thread (the back-drive
+        check still comes from the lead angle and friction).
     """
 
     pitch_mm: float
@@ -618,6 +627,7 @@ class LeadScrew:
     ball: bool = False
     ball_efficiency: float = 0.9
     backlash_mm: float = 0.0
+    forward_efficiency: float | None = None
 
     kind: ClassVar[str] = "lead_screw"
     output_kind: ClassVar[str] = "linear"
@@ -636,6 +646,10 @@ class LeadScrew:
         _check_friction(owner, self.friction_coefficient)
         _check_efficiency(owner, self.ball_efficiency)
         _check_nonnegative(owner, "backlash_mm", self.backlash_mm, "mm")
+        if self.forward_efficiency is not None:
+            if not isinstance(self.forward_efficiency, (int, float)) or isinstance(self.forward_efficiency, bool) \
+                    or not 0 < float(self.forward_efficiency) <= 1:
+                raise DesignValueError(f"{owner}.forward_efficiency", self.forward_efficiency, "in (0, 1]")
 
     @property
     def lead_mm(self) -> Fraction:
@@ -670,6 +684,8 @@ class LeadScrew:
     @property
     def efficiency(self) -> float:
         """Forward efficiency (screw turned to move the load)."""
+        if self.forward_efficiency is not None and not self.ball:
+            return float(self.forward_efficiency)
         eff = self._efficiencies()
         return eff[0] if eff is not None else 0.3
 

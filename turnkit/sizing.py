@@ -158,8 +158,8 @@ def _stage(stage, index: int):
                                       mean_diameter_mm=stage.diameter_mm, thread_angle_deg=stage.thread_angle_deg,
                                       friction_coefficient=friction, ball=stage.ball,
                                       backlash_mm=stage.backlash_mm)
-        if stage.ball and eff is not None:
-            kwargs["ball_efficiency"] = eff
+        if eff is not None:
+            kwargs["ball_efficiency" if stage.ball else "forward_efficiency"] = eff
         return gears.LeadScrew(**kwargs)
     if kind == "rack":
         return gears.RackAndPinion(module_mm=stage.module_mm, pinion_teeth=stage.pinion_teeth,
