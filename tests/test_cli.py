@@ -427,3 +427,10 @@ def test_size_several_files_refuses_a_file_as_the_output_folder(tmp_path, capsys
     assert main(["size", *files, "-o", str(target)]) == EXIT_ERROR
     assert target.read_text() == "keep me"
     assert "folder" in capsys.readouterr().err
+
+
+def test_design_template_lists_every_cell_of_the_battery_table():
+    from turnkit.battery import available_cells
+
+    text = (cli.TEMPLATES / "design.toml").read_text()
+    assert all(key in text for key in available_cells())
