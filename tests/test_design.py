@@ -328,3 +328,26 @@ def test_formatting_is_short_for_round_numbers():
     assert format_quantity(0.1, "mm") == "0.1 mm"
     with pytest.raises(ValueError):
         format_number(math.inf)
+
+
+# --- the sensor's calibration sweep path ---------------------------------------------------
+
+def test_sensor_sweep_is_an_optional_path_kept_as_written():
+    assert d.SensorDesign().sweep is None
+    sensor = d.SensorDesign(sweep="sweeps/bench sweep.csv")
+    assert sensor.sweep == "sweeps/bench sweep.csv"
+    spec = d.SensorDesign.field_spec("sweep")
+    assert spec.kind == "path" and spec.default is None and not spec.required
+
+
+@pytest.mark.parametrize("bad", ["", "   ", 3, True])
+def test_sensor_sweep_must_be_a_non_empty_path(bad):
+    with pytest.raises(DesignValueError, match=r"SensorDesign\.sweep must be a non-empty file path"):
+        d.SensorDesign(sweep=bad)
+
+
+def test_changing_the_sweep_gives_a_different_sensor_that_hashes_apart():
+    a = d.SensorDesign(sweep="a.csv")
+    b = dataclasses.replace(a, sweep="b.csv")
+    assert a != b and hash(a) != hash(b)
+    assert dataclasses.replace(b, sweep="a.csv") == a

@@ -820,3 +820,48 @@ def test_documented_reference_lists_every_key():
     missing = [(cls.__name__, spec.key) for cls in classes for spec in cls.FIELDS
                if f"| `{spec.key}` |" not in reference]
     assert missing == []
+
+
+# --- the sensor's calibration sweep ---------------------------------------------------------
+
+SWEEP_DESIGN = BASE + '[sensor]\namplitude = "60 mV"\nsweep = "sweeps/bench.csv"\n'
+
+
+def test_sensor_sweep_path_is_kept_as_written_and_checked_on_load(tmp_path):
+    path = tmp_path / "valve.toml"
+    path.write_text(SWEEP_DESIGN)
+    with pytest.raises(DesignFileError) as info:
+        load_design(path)
+    message = str(info.value)
+    assert info.value.path == "sensor.sweep" and "sweeps/bench.csv" in message and str(path) in message
+    (tmp_path / "sweeps").mkdir()
+    (tmp_path / "sweeps" / "bench.csv").write_text("x_mV,y_mV\n1,2\n")
+    assert load_design(path).sensor.sweep == "sweeps/bench.csv"
+
+
+def test_sensor_sweep_round_trips_through_dump_and_fits_the_schema():
+    design = loads_design(SWEEP_DESIGN)
+    text = dump_design(design)
+    assert 'sweep = "sweeps/bench.csv"' in text
+    assert loads_design(text) == design
+    SCHEMA_VALIDATOR.validate(tomllib.loads(text))
+    with pytest.raises(jsonschema.ValidationError):
+        SCHEMA_VALIDATOR.validate(tomllib.loads(BASE + '[sensor]\nsweep = ""\n'))
+
+
+def test_saving_adds_and_removes_the_sweep_key_keeping_the_rest_of_the_file(tmp_path):
+    path = tmp_path / "valve.toml"
+    path.write_text(BASE + '\n[sensor]\namplitude = "60 mV"  # measured on the bench\n')
+    (tmp_path / "s.csv").write_text("x_mV,y_mV\n1,2\n")
+    design = load_design(path)
+    with_sweep = dataclasses.replace(design, sensor=dataclasses.replace(design.sensor, sweep="s.csv"))
+    save_design(with_sweep, path, overwrite=True)
+    text = path.read_text()
+    assert 'sweep = "s.csv"' in text and "# measured on the bench" in text
+    assert load_design(path) == with_sweep
+    save_design(design, path, overwrite=True)
+    assert "sweep" not in path.read_text() and load_design(path) == design
+
+
+def test_empty_sweep_path_is_refused_naming_the_key():
+    assert "sensor.sweep" in str(_error(BASE + '[sensor]\nsweep = ""\n'))

@@ -299,3 +299,205 @@ def test_cutoff_at_or_above_the_nominal_voltage_is_refused_naming_the_field(smal
         size(cut, curves=False)
     assert info.value.field == "power.cutoff_voltage"
     assert "3 V" in str(info.value) or "3.0" in str(info.value)
+
+
+# --- a measured calibration sweep named in [sensor] --------------------------------------
+
+SWEEP_SENSOR = """
+[sensor]
+amplitude = "60 mV"
+offset_x = "0.6 mV"
+offset_y = "-0.4 mV"
+gain_mismatch = "1.5 %"
+phase_error = "0.8 deg"
+noise_rms = "40 uV"
+"""
+
+
+def _write_sweep(path: Path, *, offset_x=0.6, offset_y=-0.4, gain=0.015, phase_deg=0.8, amplitude=60.0,
+                 n=720, turn_deg=360.0, angles=True, glitches=(), seed=5):
+    # Written from the textbook model x = p + A cos 2θ, y = q + A(1 + g) sin(2θ + δ), not from turnkit.
+    theta = np.arange(n) * turn_deg / n
+    phi = np.radians(2.0 * theta)
+    rng = np.random.default_rng(seed)
+    x = offset_x + amplitude * np.cos(phi) + rng.normal(0.0, 0.04, n)
+    y = offset_y + amplitude * (1 + gain) * np.sin(phi + math.radians(phase_deg)) + rng.normal(0.0, 0.04, n)
+    for i, dx in glitches:
+        x[i] += dx
+    lines = ["# sweep for a test", "angle_deg,x_mV,y_mV" if angles else "x [mV],y [mV]"]
+    for a, xi, yi in zip(theta, x, y):
+        lines.append(f"{a:.3f},{xi:.5f},{yi:.5f}" if angles else f"{xi:.5f},{yi:.5f}")
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+
+
+def _sweep_design(tmp_path: Path, sensor: str = SWEEP_SENSOR, sweep: str = "sweeps/bench.csv"):
+    text = SMALL + sensor + f'sweep = "{sweep}"\n'
+    file = tmp_path / "valve.toml"
+    file.write_text(text, encoding="utf-8")
+    return load_design(file)
+
+
+def test_sweep_fit_values_recover_the_bridge_parameters_that_made_the_sweep(tmp_path):
+    _write_sweep(tmp_path / "sweeps" / "bench.csv", glitches=((100, 12.0), (400, -9.0)))
+    result = size(_sweep_design(tmp_path), base_dir=tmp_path, curves=False, simulate=False)
+    val = {v.key: v for v in result.values if v.key.startswith("sensor_sweep")}
+    assert all(v.group == "sensor" for v in val.values())
+    # Source: the parameters the sweep was generated with (40 uV noise on 720 samples: the
+    # fit's standard error is about 0.04/sqrt(360) mV, so 0.02 mV is a safe bound).
+    assert val["sensor_sweep_offset_x_mV"].value == pytest.approx(0.6, abs=0.02)
+    assert val["sensor_sweep_offset_y_mV"].value == pytest.approx(-0.4, abs=0.02)
+    assert val["sensor_sweep_gain_mismatch_percent"].value == pytest.approx(1.5, abs=0.05)
+    assert val["sensor_sweep_phase_error_deg"].value == pytest.approx(0.8, abs=0.05)
+    assert val["sensor_sweep_offset_x_mV"].unit == "mV" and val["sensor_sweep_phase_error_deg"].unit == "deg"
+    assert val["sensor_sweep_samples"].value == 720 and val["sensor_sweep_outliers"].value == 2
+    assert val["sensor_sweep_coverage_deg"].value == pytest.approx(359.0, abs=0.01)
+    # 40 uV of noise on 60 mV is 0.04/60 rad electrical RMS, half that mechanical: 0.019 deg.
+    assert val["sensor_sweep_residual_rms_deg"].value == pytest.approx(math.degrees(0.04 / 60) / 2, rel=0.2)
+    assert val["sensor_sweep_residual_peak_deg"].value > val["sensor_sweep_residual_rms_deg"].value
+    assert "sensor_sweep_radial_residual_percent" not in val
+    assert not [w for w in result.warnings if "disagree" in w]
+    assert any("Heydemann" in src for _, src in result.assumptions)
+    with pytest.raises(KeyError):
+        result.curve("calibration_sweep")  # curves=False leaves the plot out
+
+
+def test_sweep_without_reference_angles_reports_the_radial_residual(tmp_path):
+    _write_sweep(tmp_path / "sweeps" / "bench.csv", angles=False)
+    result = size(_sweep_design(tmp_path), base_dir=tmp_path, curves=False, simulate=False)
+    keys = {v.key for v in result.values}
+    assert "sensor_sweep_residual_peak_deg" not in keys and "sensor_sweep_residual_rms_deg" not in keys
+    radial = result.value("sensor_sweep_radial_residual_percent")
+    # Source: 40 uV of noise on each bridge of a 60 mV circle moves the radius by 0.04/60 RMS.
+    assert radial.value == pytest.approx(100 * 0.04 / 60, rel=0.2) and radial.unit == "%"
+
+
+def test_sweep_curve_draws_the_samples_as_points_and_the_fitted_ellipse_as_a_line(tmp_path):
+    _write_sweep(tmp_path / "sweeps" / "bench.csv", glitches=((200, 15.0),))
+    result = size(_sweep_design(tmp_path), base_dir=tmp_path, simulate=False)
+    curve = result.curve("calibration_sweep")
+    assert (curve.x_unit, curve.y_unit) == ("mV", "mV")
+    styles = {s.name: s.style for s in curve.series}
+    assert styles == {"measured samples": "points", "rejected as outliers": "points", "fitted ellipse": "line"}
+    by_name = {s.name: s for s in curve.series}
+    assert by_name["measured samples"].x.size == 719 and by_name["rejected as outliers"].x.size == 1
+    ellipse = by_name["fitted ellipse"]
+    area = 0.5 * abs(np.sum(ellipse.x[:-1] * ellipse.y[1:] - ellipse.x[1:] * ellipse.y[:-1]))
+    a = result.value("sensor_sweep_amplitude_mV").value
+    b = a * (1 + result.value("sensor_sweep_gain_mismatch_percent").value / 100)
+    d = math.radians(result.value("sensor_sweep_phase_error_deg").value)
+    # Source: the ellipse x = a cos t, y = b sin(t + d) is the unit circle under a linear map of
+    # determinant a b cos d, so its area is pi a b cos d (from memory); shoelace over 360 chords.
+    assert area == pytest.approx(math.pi * a * b * math.cos(d), rel=1e-3)
+
+
+def test_sweep_that_disagrees_with_the_sensor_parameters_warns(tmp_path):
+    _write_sweep(tmp_path / "sweeps" / "bench.csv", offset_x=2.5, phase_deg=3.0)
+    result = size(_sweep_design(tmp_path), base_dir=tmp_path, curves=False, simulate=False)
+    warning = [w for w in result.warnings if "disagree" in w]
+    assert len(warning) == 1
+    assert "offset_x" in warning[0] and "phase_error" in warning[0] and "sweeps/bench.csv" in warning[0]
+    assert "offset_y" not in warning[0] and "gain_mismatch" not in warning[0]
+
+
+def test_small_differences_within_half_a_percent_of_the_amplitude_do_not_warn(tmp_path):
+    # Stated offsets zero, measured 0.25 mV: under 0.5 % of 60 mV (0.3 mV), so no warning.
+    sensor = '\n[sensor]\namplitude = "60 mV"\ngain_mismatch = "1.5 %"\nphase_error = "0.8 deg"\n'
+    _write_sweep(tmp_path / "sweeps" / "bench.csv", offset_x=0.25, offset_y=-0.25)
+    result = size(_sweep_design(tmp_path, sensor), base_dir=tmp_path, curves=False, simulate=False)
+    assert not [w for w in result.warnings if "disagree" in w]
+    _write_sweep(tmp_path / "sweeps" / "other.csv", offset_x=0.6, offset_y=-0.25)
+    result = size(_sweep_design(tmp_path, sensor, "sweeps/other.csv"), base_dir=tmp_path, curves=False,
+                  simulate=False)
+    assert [w for w in result.warnings if "disagree" in w and "offset_x" in w]
+
+
+def test_bad_sweep_line_names_the_field_file_and_line(tmp_path):
+    from turnkit.errors import DesignFileError
+
+    path = tmp_path / "sweeps" / "bench.csv"
+    _write_sweep(path)
+    lines = path.read_text().splitlines()
+    lines[9] = "3.5,abc,1.0"
+    path.write_text("\n".join(lines) + "\n")
+    design = _sweep_design(tmp_path)
+    with pytest.raises(DesignFileError) as info:
+        size(design, base_dir=tmp_path, curves=False, simulate=False)
+    message = str(info.value)
+    assert "sensor.sweep" in message and f"{path}:10" in message and "abc" in message and "x_mV" in message
+    assert info.value.line == 10
+
+
+def test_sweep_short_of_half_a_turn_is_refused_naming_the_field_and_file(tmp_path):
+    _write_sweep(tmp_path / "sweeps" / "bench.csv", turn_deg=90.0)
+    with pytest.raises(DesignValueError) as info:
+        size(_sweep_design(tmp_path), base_dir=tmp_path, curves=False, simulate=False)
+    message = str(info.value)
+    assert message.startswith("sensor.sweep must be one full electrical period") and "bench.csv" in message
+
+
+@pytest.mark.parametrize("rows, expected", [
+    ("0,1\n90,1\n", "at least 8 samples"),
+    ("".join(f"{i},{2 * i}\n" for i in range(12)), "collinear"),
+])
+def test_too_short_or_degenerate_sweep_is_refused_naming_the_field(tmp_path, rows, expected):
+    path = tmp_path / "sweeps" / "bench.csv"
+    path.parent.mkdir()
+    path.write_text("x_mV,y_mV\n" + rows)
+    with pytest.raises(DesignValueError) as info:
+        size(_sweep_design(tmp_path), base_dir=tmp_path, curves=False, simulate=False)
+    assert str(info.value).startswith("sensor.sweep") and expected in str(info.value)
+    assert str(path) in str(info.value)
+
+
+def test_sweep_removed_after_loading_is_reported_at_sizing(tmp_path):
+    from turnkit.errors import DesignFileError
+
+    path = tmp_path / "sweeps" / "bench.csv"
+    _write_sweep(path)
+    design = _sweep_design(tmp_path)
+    path.unlink()
+    with pytest.raises(DesignFileError, match=r"sensor\.sweep: calibration sweep file 'sweeps/bench.csv' not found"):
+        size(design, base_dir=tmp_path, curves=False, simulate=False)
+
+
+def test_sweep_fit_is_reused_until_the_file_changes(tmp_path):
+    import os
+
+    from turnkit.sizing import _sweep_fit_cached
+
+    path = tmp_path / "sweeps" / "bench.csv"
+    _write_sweep(path)
+    design = _sweep_design(tmp_path)
+    first = size(design, base_dir=tmp_path, curves=False, simulate=False)
+    hits = _sweep_fit_cached.cache_info().hits
+    size(design, base_dir=tmp_path, curves=False, simulate=False)
+    assert _sweep_fit_cached.cache_info().hits == hits + 1
+    stat = path.stat()
+    _write_sweep(path, offset_x=1.1)
+    os.utime(path, ns=(stat.st_atime_ns, stat.st_mtime_ns + 1_000_000_000))
+    again = size(design, base_dir=tmp_path, curves=False, simulate=False)
+    assert first.value("sensor_sweep_offset_x_mV").value == pytest.approx(0.6, abs=0.02)
+    assert again.value("sensor_sweep_offset_x_mV").value == pytest.approx(1.1, abs=0.02)
+
+
+def test_irrigation_demo_fits_its_bench_sweep_and_agrees_with_its_sensor_model():
+    design = load_design(DEMO / "irrigation-gate-valve.toml")
+    assert design.sensor.sweep == "sweeps/gate-sensor-sweep.csv"
+    result = size(design, base_dir=DEMO, curves=False, simulate=False)
+    assert result.value("sensor_sweep_samples").value == 720
+    assert result.value("sensor_sweep_outliers").value == 2
+    assert result.value("sensor_sweep_gain_mismatch_percent").value == pytest.approx(1.5, abs=0.05)
+    assert not [w for w in result.warnings if "disagree" in w]
+
+
+def test_sweep_that_cannot_be_resolved_without_base_dir_is_skipped_with_a_warning(tmp_path, monkeypatch):
+    _write_sweep(tmp_path / "sweeps" / "bench.csv")
+    design = _sweep_design(tmp_path)
+    monkeypatch.chdir(ROOT)  # the relative sweep path does not exist from here
+    result = size(design, simulate=False)
+    assert not [v for v in result.values if v.key.startswith("sensor_sweep")]
+    assert [w for w in result.warnings if "'sweeps/bench.csv' was not fitted" in w and "base_dir" in w]
+    assert "calibration_sweep" not in {c.key for c in result.curves}
+    monkeypatch.chdir(tmp_path)  # from the design file's folder it resolves
+    assert size(design, curves=False, simulate=False).value("sensor_sweep_samples").value == 720

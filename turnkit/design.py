@@ -551,7 +551,12 @@ _LINEAR_STAGE_KINDS = frozenset({"lead_screw", "rack"})
 
 @dataclass(frozen=True, slots=True)
 class SensorDesign(_Section):
-    """The AMR angle sensor: two Wheatstone bridges (sin 2θ, cos 2θ) and the ADC."""
+    """The AMR angle sensor: two Wheatstone bridges (sin 2θ, cos 2θ) and the ADC.
+
+    ``sweep`` optionally names a measured calibration sweep (a CSV path kept as
+    written, relative to the design file); sizing fits it and compares the fit
+    with the parameters given here.
+    """
 
     FIELDS: ClassVar[tuple[FieldSpec, ...]] = (
         FieldSpec("amplitude", "quantity", "peak amplitude of each bridge output at the ADC input",
@@ -573,6 +578,8 @@ class SensorDesign(_Section):
                   units=("mV",), low=0.0, low_open=True, default=250.0),
         FieldSpec("calibrated", "bool", "true when offsets, gain and phase are calibrated out",
                   default=False),
+        FieldSpec("sweep", "path", "CSV file of a measured calibration sweep (columns x and y in mV, "
+                  "optionally angle in deg), relative to the design file"),
     )
     amplitude_mV: float = 100.0
     offset_x_mV: float = 0.0
@@ -585,6 +592,7 @@ class SensorDesign(_Section):
     adc_bits: int = 12
     adc_full_scale_mV: float = 250.0
     calibrated: bool = False
+    sweep: str | None = None
 
 
 @dataclass(frozen=True, slots=True)

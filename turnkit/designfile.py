@@ -89,8 +89,8 @@ def load_design(path: str | os.PathLike) -> d.ActuatorDesign:
     Parameters
     ----------
     path : str or path-like
-        The TOML design file. Motion trace paths in it are relative to its
-        folder; each trace file must exist.
+        The TOML design file. Motion trace paths and the sensor's calibration
+        sweep path in it are relative to its folder; each file must exist.
 
     Returns
     -------
@@ -119,6 +119,16 @@ def load_design(path: str | os.PathLike) -> d.ActuatorDesign:
                     "trace paths are relative to the design file",
                     source=str(path),
                 )
+    if design.sensor.sweep is not None:
+        sweep = Path(design.sensor.sweep)
+        resolved = sweep if sweep.is_absolute() else path.parent / sweep
+        if not resolved.is_file():
+            raise DesignFileError(
+                "sensor.sweep",
+                f"calibration sweep file {design.sensor.sweep!r} not found (looked for {resolved}); "
+                "sweep paths are relative to the design file",
+                source=str(path),
+            )
     return design
 
 

@@ -11,7 +11,8 @@ Result keys (``result.value(key)``) carry their unit in the name; the curve
 keys are ``"life_vs_poll_period"`` (or ``"current_vs_poll_period"`` on a host
 supply), ``"backdrive_event"``, ``"backdrive_error"``,
 ``"resolution_vs_reduction"``, ``"backdrive_speed_vs_reduction"``,
-``"current_profile"`` and ``"sensor_error"``.
+``"current_profile"``, ``"sensor_error"`` and, when the design names a measured
+sweep (``[sensor] sweep``), ``"calibration_sweep"``.
 
 Examples
 --------
@@ -447,6 +448,136 @@ def _simulate_scenario(sc: MotionScenario, stages: tuple, schedule, settings, ba
 
 
 # ---------------------------------------------------------------------------
+# a measured calibration sweep ([sensor] sweep)
+# ---------------------------------------------------------------------------
+
+@lru_cache(maxsize=16)
+def _sweep_fit_cached(path: str, mtime_ns: int, size_bytes: int):
+    """Read and robustly fit one sweep file; keyed on its modification time and size."""
+    from .calibration import fit_sweep, read_sweep_csv
+
+    data = read_sweep_csv(path)
+    return data, fit_sweep(data.x_mV, data.y_mV, angle_deg=data.angle_deg, robust=True)
+
+
+def _sweep_report(sensor_design, base_dir) -> tuple[list[Value], list[str], list[tuple[str, str]], Curve | None]:
+    """Fit the sensor's measured sweep and compare it with the design's sensor parameters.
+
+    Returns
+    -------
+    (values, warnings, assumptions, curve)
+        Values in group "sensor" (offsets in mV, gain mismatch in %, phase
+        error in electrical deg, sample counts, coverage in electrical deg,
+        residual angle error in mechanical deg or radial residual in % of
+        amplitude), warnings where the fit and the design disagree, and the
+        "calibration_sweep" curve (raw samples and the fitted ellipse, mV).
+        Without ``base_dir`` a relative path that does not resolve from the
+        working folder gives only a warning (nothing to fit, no curve).
+
+    Raises
+    ------
+    DesignFileError
+        Missing or unreadable file, bad CSV header or line (names the file and line).
+    DesignValueError
+        A sweep too short, too small or degenerate to fit (names ``sensor.sweep``).
+    """
+    from .errors import DesignFileError
+
+    s = sensor_design
+    path = Path(s.sweep)
+    if not path.is_absolute() and base_dir is not None:
+        path = Path(base_dir) / path
+    try:
+        st = path.stat()
+    except OSError:
+        if base_dir is None and not path.is_absolute():
+            # Sized without the design file's folder (e.g. from Python): the path cannot be resolved.
+            return [], [f"The calibration sweep {s.sweep!r} was not fitted: its path is relative to the design "
+                        "file; pass base_dir (the design file's folder) to size it."], [], None
+        raise DesignFileError("sensor.sweep", f"calibration sweep file {s.sweep!r} not found (looked for "
+                                              f"{path}); sweep paths are relative to the design file") from None
+    try:
+        data, fit = _sweep_fit_cached(str(path), st.st_mtime_ns, st.st_size)
+    except DesignFileError as exc:
+        # Re-label the reader's error (file, line, column) as coming from sensor.sweep.
+        where = exc.source
+        if exc.line is not None:
+            where = f"{where}:{exc.line}" if where else f"line {exc.line}"
+        message = str(exc).removeprefix(f"{where}: " if where else "").removeprefix(
+            f"{exc.path}: " if exc.path else "")
+        column = f"column {exc.path!r}: " if exc.path else ""
+        raise DesignFileError("sensor.sweep", f"{column}{message}", source=exc.source or str(path),
+                              line=exc.line) from None
+    except DesignValueError as exc:
+        name = exc.field if exc.field != "sweep" else ""
+        field = "sensor.sweep" + (f" ({name})" if name else "")
+        raise DesignValueError(field, exc.value, exc.allowed, unit=exc.unit,
+                               hint=f"{exc.hint} (sweep file {path})" if exc.hint else f"sweep file {path}") from None
+    c = fit.correction
+    amp = s.amplitude_mV
+    group = "sensor"
+    vals = [
+        Value("sensor_sweep_file", "Calibration sweep file", s.sweep, "", group),
+        Value("sensor_sweep_offset_x_mV", "Fitted offset of the cos bridge", c.offset_x_mV, "mV", group),
+        Value("sensor_sweep_offset_y_mV", "Fitted offset of the sin bridge", c.offset_y_mV, "mV", group),
+        Value("sensor_sweep_amplitude_mV", "Fitted amplitude of the cos bridge", c.amplitude_x_mV, "mV", group),
+        Value("sensor_sweep_gain_mismatch_percent", "Fitted gain mismatch (sin over cos bridge)",
+              100.0 * c.gain_mismatch, "%", group),
+        Value("sensor_sweep_phase_error_deg", "Fitted phase error (electrical)", c.phase_error_deg, "deg", group),
+        Value("sensor_sweep_samples", "Samples in the sweep", fit.n_samples, "", group),
+        Value("sensor_sweep_outliers", "Samples rejected as outliers", fit.n_outliers, "", group),
+        Value("sensor_sweep_coverage_deg", "Sweep coverage (electrical)", fit.coverage_el_deg, "deg", group,
+              note="360 deg electrical is half a shaft turn"),
+    ]
+    if fit.angle_residual_peak_deg is not None:
+        vals.append(Value("sensor_sweep_residual_peak_deg", "Angle error left after the fitted correction, peak",
+                          fit.angle_residual_peak_deg, "deg", group, note="mechanical, against the sweep's angles"))
+        vals.append(Value("sensor_sweep_residual_rms_deg", "Angle error left after the fitted correction, RMS",
+                          fit.angle_residual_rms_deg, "deg", group, note="mechanical, against the sweep's angles"))
+    else:
+        vals.append(Value("sensor_sweep_radial_residual_percent",
+                          "Distance from the circle left after the fitted correction, RMS",
+                          100.0 * fit.radial_residual_rms, "%", group,
+                          note="of the amplitude; the sweep has no reference angles"))
+
+    # Disagreement: more than twice the stated value, and more than 0.5 % of the amplitude
+    # (a phase error of 0.005 rad moves the sin bridge by 0.5 % of its amplitude).
+    floor_mV, floor_deg = 0.005 * amp, math.degrees(0.005)
+    compared = (
+        ("offset_x", s.offset_x_mV, c.offset_x_mV, floor_mV, "mV", 1.0),
+        ("offset_y", s.offset_y_mV, c.offset_y_mV, floor_mV, "mV", 1.0),
+        ("gain_mismatch", s.gain_mismatch, c.gain_mismatch, 0.005, "%", 100.0),
+        ("phase_error", s.phase_error_deg, c.phase_error_deg, floor_deg, "deg el.", 1.0),
+    )
+    off = [f"{key} {stated * k:.3g} {u} in the design, {fitted * k:.3g} {u} fitted"
+           for key, stated, fitted, floor, u, k in compared
+           if abs(fitted - stated) > max(2.0 * abs(stated), floor)]
+    warns = []
+    if off:
+        warns.append(f"The [sensor] parameters and the measured sweep {s.sweep!r} disagree: " + "; ".join(off)
+                     + ". The sizing uses the [sensor] values; update them from the sweep or check the "
+                       "measurement.")
+    assumptions = [(f"Calibration sweep {s.sweep!r} fitted as an ellipse (offsets, gains, phase) with outliers "
+                    "rejected by robust reweighting",
+                    "P. L. M. Heydemann, Appl. Opt. 20(19), 1981, 3382-3384")]
+
+    phi = np.linspace(0.0, 2.0 * np.pi, 361)
+    d = math.radians(c.phase_error_deg)
+    inlier = fit.weights > 0
+    series = [Series("measured samples", data.x_mV[inlier], data.y_mV[inlier], style="points")]
+    if fit.n_outliers:
+        series.append(Series("rejected as outliers", data.x_mV[~inlier], data.y_mV[~inlier], style="points"))
+    series.append(Series("fitted ellipse", c.offset_x_mV + c.amplitude_x_mV * np.cos(phi),
+                         c.offset_y_mV + c.amplitude_y_mV * np.sin(phi + d)))
+    curve = Curve("calibration_sweep", "Measured calibration sweep and fitted ellipse", "cos bridge x", "mV",
+                  "sin bridge y", "mV", tuple(series),
+                  note=f"{fit.n_samples} samples, {fit.n_outliers} rejected; offsets {c.offset_x_mV:.3g} / "
+                       f"{c.offset_y_mV:.3g} mV, gain mismatch {100 * c.gain_mismatch:.3g} %, phase error "
+                       f"{c.phase_error_deg:.3g} deg el.")
+    return vals, warns, assumptions, curve
+
+
+# ---------------------------------------------------------------------------
 # the engine
 # ---------------------------------------------------------------------------
 
@@ -488,7 +619,8 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     design : ActuatorDesign
         The validated design (from :func:`turnkit.designfile.load_design` or Python).
     base_dir : path, optional
-        Folder that relative trace paths are relative to (the design file's folder).
+        Folder that relative trace and calibration-sweep paths are relative to
+        (the design file's folder).
     curves : bool
         Also compute the plot data (the dashboard and the HTML summary want it;
         the command line without ``-o`` does not).
@@ -585,6 +717,12 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     add("sensor_resolution_deg", "Sensor effective resolution at the motor", summary.resolution_deg, "deg",
         "sensor")
     add("sensor_effective_bits", "Sensor effective resolution", summary.effective_bits, "bit", "sensor")
+    sweep_curve = None
+    if design.sensor.sweep is not None:
+        sweep_values, sweep_warns, sweep_assumptions, sweep_curve = _sweep_report(design.sensor, base_dir)
+        values.extend(sweep_values)
+        warns.extend(sweep_warns)
+        assumptions.extend(sweep_assumptions)
     resolution_out = train.output_resolution(summary.resolution_deg)
     add("output_resolution", "Output resolution", resolution_out, unit, "sensor", equation="output_resolution")
     sensor_err_out = train.output_resolution(motor_peak)
@@ -778,6 +916,8 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
         curve_list.extend(_curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
                                   max_period_s, required_rpm, req_speed, out_speed_unit, temperature_C,
                                   guaranteed_rpm, resolution_out, base, usable))
+        if sweep_curve is not None:
+            curve_list.append(sweep_curve)
 
     eq_keys.extend(["max_trackable_speed", "max_poll_period"])
     text = _design_text(design)
