@@ -593,7 +593,9 @@ def _counter_bits_needed(quarter_turns: int, signed: bool) -> int:
     return bits + 1 if signed else bits
 
 
+@lru_cache(maxsize=256)
 def _design_text(design: ActuatorDesign) -> str:
+    # Cached: sweeps and the dashboard size the same design again and again.
     from .designfile import dump_design
 
     return dump_design(design)
