@@ -501,3 +501,22 @@ def test_sweep_that_cannot_be_resolved_without_base_dir_is_skipped_with_a_warnin
     assert "calibration_sweep" not in {c.key for c in result.curves}
     monkeypatch.chdir(tmp_path)  # from the design file's folder it resolves
     assert size(design, curves=False, simulate=False).value("sensor_sweep_samples").value == 720
+
+
+def test_inverse_values_agree_with_the_symbolic_solutions(small):
+    result = size(small, curves=False)
+    # Smallest reduction for the required resolution (0.01 mm) against sympy's inverse.
+    sol = eq.min_reduction_for_resolution(output_resolution=0.01,
+                                          sensor_resolution_deg=result.value("sensor_resolution_deg").value,
+                                          travel_per_output_turn=2.0)
+    assert result.value("min_reduction_for_resolution").value == pytest.approx(sol.value, rel=1e-9)
+    # Largest sleep current for a 5-year life: one consumer, 2 uA asleep, 1 mA for 170 us per 20 ms.
+    pack = batt.Pack(batt.cell("li_fes2_aa"), series=2)
+    sym = eq.max_sleep_current_for_life_uA(life_years=5.0, capacity_mAh=pack.capacity_mAh, awake_current_uA=1000.0,
+                                           awake_time_s=170e-6, poll_period_s=0.020,
+                                           self_discharge_per_year=pack.self_discharge_per_year)
+    assert result.value("max_sleep_current_uA").value == pytest.approx(sym.value, rel=1e-9)
+    # Sizing with exactly that sleep current lasts exactly the required life.
+    consumer = replace(small.power.consumers[0], asleep_uA=result.value("max_sleep_current_uA").value)
+    edge = replace(small, power=replace(small.power, consumers=(consumer,)))
+    assert size(edge, curves=False).value("battery_life_years").value == pytest.approx(5.0, rel=1e-9)

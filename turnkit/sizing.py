@@ -734,6 +734,9 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     target_res = req.output_resolution_mm if unit == "mm" else req.output_resolution_deg
     if target_res is not None:
         need = float(ratio) * resolution_out / target_res
+        add("min_reduction_for_resolution", "Smallest reduction giving the required resolution", need, ":1",
+            "gear train", equation="output_resolution",
+            note="with this sensor and the same final stage; inverse of the resolution equation")
         checks.append(_check("output_resolution", "Output resolution is fine enough", resolution_out, target_res,
                             unit, "<=", advice=f"raise the reduction to at least {need:.4g}:1, or use a "
                                                "quieter sensor or a finer ADC"))
@@ -862,6 +865,20 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
                                f"{max_period_s * 1e3:.4g} ms) also saves charge")
                 add("capacity_needed_mAh", "Capacity needed for the required life", need_cap, "mAh", "battery",
                     equation="capacity_for_life")
+                # Largest sleep current that still lasts the life: solve the life equation for the
+                # average current, then give the whole change to the time spent asleep.
+                asleep_share = budget.state_fractions()["asleep"]
+                tf = float(pack.temperature_factor(temperature_C))
+                c_nom = pack.capacity_mAh
+                allowed_uA = (c_nom * tf * usable - pack.self_discharge_per_year * c_nom * req.battery_life_years) \
+                    / (_HOURS_PER_YEAR * req.battery_life_years) * 1e3
+                sleep_now = profile.state_totals_uA()["asleep"]
+                if asleep_share > 0:
+                    max_sleep = sleep_now + (allowed_uA - budget.average_current_uA) / asleep_share
+                    add("max_sleep_current_uA", "Largest total sleep current that lasts the required life",
+                        max_sleep, "uA", "battery", equation="battery_life",
+                        note=("negative: even zero sleep current cannot make the life; the wake-ups alone cost "
+                              "too much") if max_sleep < 0 else f"now {sleep_now:.3g} uA")
             except DesignValueError:
                 advice = (f"this chemistry cannot last {req.battery_life_years:g} years against its own "
                           "self-discharge: choose another chemistry")
