@@ -39,6 +39,7 @@ from fractions import Fraction
 import numpy as np
 
 from .errors import DesignValueError
+from .latches import GRAY_SEQUENCE, gray_to_quadrant, quadrant_to_gray
 
 __all__ = [
     "CounterMode",
@@ -67,12 +68,8 @@ __all__ = [
 #: Marker returned by the decoding rule for a two-quarter (ambiguous) change.
 AMBIGUOUS = 2
 
-#: The 2-bit reflected Gray code, in forward order of the quadrant index 0..3.
-# Source: F. Gray, "Pulse code communication", US patent 2,632,058 (filed 1947,
-# granted 1953) — the reflected binary code; for 2 bits: 00, 01, 11, 10.
-GRAY_SEQUENCE = (0b00, 0b01, 0b11, 0b10)
-
-_GRAY_TO_INDEX = np.array([0, 1, 3, 2], dtype=np.int64)  # code 0,1,2,3 -> index
+# The 2-bit reflected Gray code (00, 01, 11, 10) and its conversions live with the latches
+# that produce it; the counter takes any integer code modulo 4.
 # (i_new - i_old) mod 4 -> decoded step; 2 is the ambiguous marker.
 _DECODE_TABLE = np.array([0, 1, AMBIGUOUS, -1], dtype=np.int64)
 
@@ -339,13 +336,12 @@ def gray_to_index(code):
     code : int or array of int
         Latch code, bit 1 = second latch, bit 0 = first latch.
     """
-    return _GRAY_TO_INDEX[np.asarray(code, dtype=np.int64) & 3]
+    return gray_to_quadrant(np.asarray(code, dtype=np.int64) & 3)
 
 
 def index_to_gray(index):
     """2-bit Gray code of a quadrant index (any integer; taken modulo 4)."""
-    i = np.asarray(index, dtype=np.int64) & 3
-    return i ^ (i >> 1)
+    return quadrant_to_gray(np.asarray(index, dtype=np.int64) & 3)
 
 
 def decode_step(old_index: int, new_index: int) -> int:

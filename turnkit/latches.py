@@ -51,7 +51,8 @@ __all__ = [
     "simulate_half_turn",
 ]
 
-#: Codes (g1 g0 as a 2-bit integer) of quadrants 0, 1, 2, 3 in forward order.
+#: Codes (g1 g0 as a 2-bit integer) of quadrants 0, 1, 2, 3 in forward order: the 2-bit
+#: reflected binary code of F. Gray, "Pulse code communication", US patent 2,632,058 (1953).
 GRAY_SEQUENCE = (0b00, 0b01, 0b11, 0b10)
 
 #: Caution carried by every half-turn margin result.
