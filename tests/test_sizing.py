@@ -520,3 +520,27 @@ def test_inverse_values_agree_with_the_symbolic_solutions(small):
     consumer = replace(small.power.consumers[0], asleep_uA=result.value("max_sleep_current_uA").value)
     edge = replace(small, power=replace(small.power, consumers=(consumer,)))
     assert size(edge, curves=False).value("battery_life_years").value == pytest.approx(5.0, rel=1e-9)
+
+
+def test_rotary_speed_at_the_output_of_a_linear_train_is_refused_naming_the_scenario():
+    # Regression: an rpm at the output of a lead screw was read as 360 mm per revolution.
+    text = SMALL + '''
+[[motion]]
+name = "spin"
+kind = "constant"
+at = "output"
+speed = "30 rpm"
+duration = "2 s"
+'''
+    with pytest.raises(DesignValueError) as info:
+        size(loads_design(text), curves=False)
+    assert info.value.field == "motion[spin].speed"
+    assert "mm/s" in str(info.value)
+
+
+def test_motor_speed_for_output_speed_matches_the_train(small):
+    train = build_train(small)  # 2/3 mm per motor turn
+    from turnkit.sizing import motor_rpm_for_output_speed
+
+    assert motor_rpm_for_output_speed(5.0, train, "mm/s") == pytest.approx(450.0)
+    assert motor_rpm_for_output_speed(-5.0, train, "mm/s") == pytest.approx(-450.0)

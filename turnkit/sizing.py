@@ -70,7 +70,7 @@ from .counter import CounterSettings
 from .design import ActuatorDesign, MotionScenario
 from .errors import DesignValueError, TurnkitWarning
 from .motion import (AtOutput, BackDriveBursts, CoastDown, ConstantSpeed, MotionProfile, TrapezoidMove,
-                     Vibration, load_trace_csv)
+                     Vibration, load_trace_csv, output_speed_to_motor_rpm)
 from .result import (Band, Check, Curve, EquationText, Marker, Scenario, Series, SizingResult, Value)
 from .schedule import AdaptiveSchedule, FixedSchedule
 
@@ -307,14 +307,22 @@ def _motor_deg_per_output(train) -> float:
     return 360.0 / float(train.travel_per_motor_turn)
 
 
-def motor_rpm_for_output_speed(speed: float, train, unit: str) -> float:
-    """Motor speed (rpm) for an output speed in ``unit`` ("mm/s", "rpm" or "deg/s")."""
-    per_turn = float(train.travel_per_motor_turn)  # mm or deg of output per motor turn
-    if unit == "rpm":
-        out_per_s = speed * 360.0 / 60.0
-    else:
-        out_per_s = speed
-    return out_per_s / per_turn * 60.0
+def motor_rpm_for_output_speed(speed: float, train, unit: str, field: str = "speed") -> float:
+    """Motor speed (rpm) for an output speed: ``unit`` "mm/s" for a linear output, "rpm" for a rotary one.
+
+    The sign follows ``speed`` (the train's direction is not applied).
+
+    Raises
+    ------
+    DesignValueError
+        When ``unit`` does not suit the output (e.g. rpm at the output of a lead screw), naming ``field``.
+    """
+    expected = "mm/s" if train.output_unit == "mm" else "rpm"
+    if unit != expected:
+        raise DesignValueError(field, f"{speed:g} {unit}", f"a speed in {expected} for this "
+                               f"{'linear' if expected == 'mm/s' else 'rotary'} output")
+    # motion.output_speed_to_motor_rpm applies the train's direction; undo it to keep the sign given.
+    return float(output_speed_to_motor_rpm(speed, train)) * train.direction
 
 
 def output_speed_for_motor_rpm(rpm: float, train) -> tuple[float, str]:
@@ -327,17 +335,23 @@ def output_speed_for_motor_rpm(rpm: float, train) -> tuple[float, str]:
 
 def _scenario_motor(sc: MotionScenario, train, what: str) -> tuple[float | None, str]:
     """A scenario quantity at the motor: (value in deg, rpm or deg/s^2 at the motor)."""
+    where = f"motion[{sc.name}].{what}"
     if what == "speed":
         if sc.speed_rpm is not None:
             v = sc.speed_rpm
-            return (v if sc.at == "motor" else motor_rpm_for_output_speed(v, train, "rpm")), "rpm"
+            return (v if sc.at == "motor" else motor_rpm_for_output_speed(v, train, "rpm", where)), "rpm"
         if sc.speed_mm_per_s is not None:
-            return motor_rpm_for_output_speed(sc.speed_mm_per_s, train, "mm/s"), "rpm"
+            return motor_rpm_for_output_speed(sc.speed_mm_per_s, train, "mm/s", where), "rpm"
         return None, "rpm"
     attrs = {"distance": ("distance_deg", "distance_mm"), "start": ("start_deg", "start_mm"),
              "amplitude": ("amplitude_deg", "amplitude_mm"),
              "acceleration": ("acceleration_deg_per_s2", "acceleration_mm_per_s2")}[what]
     rot, lin = getattr(sc, attrs[0]), getattr(sc, attrs[1])
+    if lin is not None and train.output_unit != "mm":
+        raise DesignValueError(where, f"{lin:g} mm", "an angle (deg) for this rotary output")
+    if rot is not None and sc.at == "output" and train.output_unit == "mm":
+        raise DesignValueError(where, f"{rot:g} deg", "a length (mm) at the output of this linear train",
+                               hint="or give it at = 'motor'")
     if rot is not None:
         return (rot if sc.at == "motor" else rot * _motor_deg_per_output(train)), "deg"
     if lin is not None:
@@ -783,7 +797,8 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     max_period_s = None
     required_rpm = None
     if req_speed is not None:
-        required_rpm = motor_rpm_for_output_speed(req_speed, train, "mm/s" if unit == "mm" else "rpm")
+        required_rpm = motor_rpm_for_output_speed(req_speed, train, "mm/s" if unit == "mm" else "rpm",
+                                                  "requirements.backdrive_speed")
         max_period_s = bounds.max_poll_period_s(required_rpm)
         add("backdrive_motor_speed_rpm", "Motor speed at the required back-drive speed", required_rpm, "rpm",
             "schedule", equation="backdrive_motor_speed")
