@@ -26,9 +26,19 @@ __all__ = [
     "format_quantity",
 ]
 
-# A number at the start of a quantity string, used to read offset units
-# ("25 degC") that pint refuses to multiply out of a string expression.
-_LEADING_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
+# The fixed grammar of a quantity: a number, then (optionally) a unit. Only the
+# unit part is ever handed to pint, so no text is evaluated as an expression
+# ("9**9**9 ms" would otherwise make pint compute a huge power).
+_NUMBER = r"[-+]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?"
+_UNIT_NAME = r"(?:[A-Za-z_\u00b0\u2126][A-Za-z_\u00b0\u2126]*|%)"
+_UNIT_FACTOR = rf"{_UNIT_NAME}(?:\s*(?:\^|\*\*)\s*[-+]?\d)?"
+_UNIT = rf"{_UNIT_FACTOR}(?:\s*[*/]\s*{_UNIT_FACTOR}|\s+{_UNIT_FACTOR})*"
+_QUANTITY = re.compile(rf"^\s*({_NUMBER})\s*({_UNIT})?\s*$")
+_DECIMAL_COMMA = re.compile(r"^\s*[-+]?\d*,\d")
+_STARTS_WITH_NUMBER = re.compile(rf"^\s*{_NUMBER}")
+#: Longest quantity text read (longer text is refused before any parsing).
+MAX_QUANTITY_CHARS = 80
+_ALLOWED = "a number and a unit such as '2 mm', '15 uA' or '5 years'"
 
 
 @lru_cache(maxsize=1)
@@ -46,6 +56,15 @@ def registry():
 def parse_quantity(text: Any, field: str):
     """Parse ``text`` ("2 mm", "15 uA") into a pint Quantity.
 
+    The text must be a number followed by an optional unit: digits with a
+    decimal point and an optional exponent (``1.5``, ``2e-3``), then a unit
+    made of unit names joined by ``*``, ``/`` or spaces, each with an optional
+    one-digit power (``mm/s^2``, ``deg/s**2``). Nothing else is accepted:
+    decimal commas (``"1,2 uA"``), a unit without a number (``"ms"``),
+    arithmetic (``"2**10 ms"``) and temperature differences
+    (``"25 delta_degC"``) are refused with a hint. Only the unit part is
+    given to pint.
+
     Parameters
     ----------
     text : str or number or pint.Quantity
@@ -56,29 +75,56 @@ def parse_quantity(text: Any, field: str):
     Raises
     ------
     DesignValueError
-        When the text is not a quantity pint understands.
+        When the text is not a number and a unit pint knows.
     """
     ureg = registry()
     if isinstance(text, ureg.Quantity):
         return text
     if isinstance(text, bool):
-        raise DesignValueError(field, text, "a number or a quantity with a unit such as '2 mm'")
+        raise DesignValueError(field, text, _ALLOWED)
     if isinstance(text, (int, float)):
         return ureg.Quantity(text)
     if not isinstance(text, str):
-        raise DesignValueError(field, text, "a number or a quantity with a unit such as '2 mm'")
-    cleaned = text.strip().replace("µ", "u").replace("μ", "u")
+        raise DesignValueError(field, text, _ALLOWED)
+    if len(text) > MAX_QUANTITY_CHARS:
+        raise DesignValueError(field, text[:20] + "...", _ALLOWED,
+                               hint=f"the text is {len(text)} characters long; at most {MAX_QUANTITY_CHARS} are read")
+    cleaned = text.replace("\u00b5", "u").replace("\u03bc", "u")
+    match = _QUANTITY.match(cleaned)
+    if match is None:
+        raise DesignValueError(field, text, _ALLOWED, hint=_grammar_hint(cleaned))
+    number, unit = match.group(1), (match.group(2) or "").strip()
+    value = float(number)
+    if not unit:
+        return ureg.Quantity(value)
+    if "delta_" in unit.lower():
+        raise DesignValueError(field, text, _ALLOWED, hint="a temperature difference (delta_...) is not a "
+                                                             "temperature; write the temperature itself, "
+                                                             "such as '25 degC'")
     try:
-        q = ureg.Quantity(cleaned)
-    except Exception as exc:  # pint raises several unrelated types here
-        offset = _parse_offset_quantity(cleaned)
-        if offset is not None:
-            return offset
-        raise DesignValueError(
-            field, text, "a quantity with a unit such as '2 mm', '15 uA' or '5 years'",
-            hint=f"pint said: {exc}",
-        ) from None
-    return q
+        parsed = _parse_unit(unit)
+    except DesignValueError as exc:
+        raise DesignValueError(field, text, _ALLOWED, hint=exc.hint) from None
+    return ureg.Quantity(value, parsed)
+
+
+def _grammar_hint(text: str) -> str:
+    """Why ``text`` is not "number unit", in words a user can act on."""
+    if _DECIMAL_COMMA.match(text):
+        return "use a decimal point, not a comma (write '1.2 uA', not '1,2 uA'), and no thousands separators"
+    if not _STARTS_WITH_NUMBER.match(text):
+        return "it must start with a number (write '1 ms', not 'ms')"
+    return ("after the number comes one unit such as 'mm', 'uA', 'mm/s' or 'deg/s^2'; arithmetic "
+            "('2**3', '2*3') is not read")
+
+
+@lru_cache(maxsize=512)
+def _parse_unit(unit: str):
+    """The pint unit for the unit part of a quantity (cached: pint's parser is slow)."""
+    try:
+        return registry().parse_units(unit)
+    except Exception as exc:  # pint raises several unrelated types for unknown names
+        raise DesignValueError("unit", unit, "a unit pint knows", hint=f"unknown unit: {exc}") from None
 
 
 def to_magnitude(text: Any, unit: str, field: str) -> float:
@@ -106,22 +152,6 @@ def to_magnitude(text: Any, unit: str, field: str) -> float:
             field, str(text), f"a quantity convertible to {unit} (dimension {expected})",
             hint=f"'{text}' has dimension {q.dimensionality}",
         ) from None
-
-
-def _parse_offset_quantity(text: str):
-    """Read "number unit" with an offset unit (degC, degF) as one quantity.
-
-    pint parses "25 degC" as the product 25 * degC, which is ambiguous for
-    offset units; building the quantity from its two parts is not.
-    """
-    ureg = registry()
-    match = _LEADING_NUMBER.match(text)
-    if match is None or not match.group(2):
-        return None
-    try:
-        return ureg.Quantity(float(match.group(1)), match.group(2))
-    except Exception:  # not a unit pint knows either: report the original error
-        return None
 
 
 def angle_power(quantity) -> int:
