@@ -453,12 +453,9 @@ def read_sweep_csv(source, *, x_column: str = "x", y_column: str = "y",
         message names the file, line and column.
     """
     if isinstance(source, (str, os.PathLike)):
-        name = os.fspath(source)
-        try:
-            with open(name, newline="", encoding="utf-8") as fh:
-                text = fh.read()
-        except OSError as exc:
-            raise DesignFileError("", f"cannot read sweep file: {exc.strerror}", name) from None
+        from .datafiles import read_text_file
+
+        name, text = read_text_file(source, "calibration sweep")
     elif isinstance(source, io.TextIOBase) or hasattr(source, "read"):
         name = str(getattr(source, "name", ""))
         text = source.read()

@@ -32,8 +32,10 @@ True
 
 from __future__ import annotations
 
+import codecs
 import dataclasses
 import difflib
+import hashlib
 import math
 import os
 import re
@@ -48,9 +50,12 @@ from .errors import DesignFileError, DesignValueError
 
 __all__ = [
     "load_design",
+    "load_design_file",
+    "LoadedDesign",
     "loads_design",
     "dump_design",
     "save_design",
+    "save_loaded_design",
     "design_schema",
     "trace_path",
 ]
@@ -83,14 +88,19 @@ _EXAMPLES = {
 
 # --- reading ---------------------------------------------------------------------
 
-def load_design(path: str | os.PathLike) -> d.ActuatorDesign:
+def load_design(path: str | os.PathLike, *, allow_outside_paths: bool = False) -> d.ActuatorDesign:
     """Read a design file.
 
     Parameters
     ----------
     path : str or path-like
-        The TOML design file. Motion trace paths and the sensor's calibration
-        sweep path in it are relative to its folder; each file must exist.
+        The TOML design file (UTF-8; a byte-order mark is accepted). Motion
+        trace paths and the sensor's calibration sweep path in it are
+        relative to its folder; each file must exist.
+    allow_outside_paths : bool
+        Accept trace and sweep files outside the design file's folder
+        (absolute paths, ``../``, links pointing elsewhere). Off by default,
+        so a design file cannot make turnkit read files elsewhere.
 
     Returns
     -------
@@ -101,35 +111,63 @@ def load_design(path: str | os.PathLike) -> d.ActuatorDesign:
     DesignFileError
         When the file cannot be read or any entry is invalid.
     """
+    return load_design_file(path, allow_outside_paths=allow_outside_paths).design
+
+
+@dataclasses.dataclass(frozen=True)
+class LoadedDesign:
+    """A design as read from its file, with a fingerprint of the bytes it was read from.
+
+    Parameters
+    ----------
+    design : ActuatorDesign
+        The design.
+    path : pathlib.Path
+        The file it was read from.
+    sha256 : str
+        SHA-256 (hex) of the file's bytes when read; :func:`save_design`
+        refuses to save over the file when they changed since.
+    """
+
+    design: d.ActuatorDesign
+    path: Path
+    sha256: str
+
+
+def load_design_file(path: str | os.PathLike, *, allow_outside_paths: bool = False) -> LoadedDesign:
+    """Read a design file and remember what was read (see :class:`LoadedDesign`).
+
+    Parameters
+    ----------
+    path : str or path-like
+        The design file.
+    allow_outside_paths : bool
+        As for :func:`load_design`.
+
+    Returns
+    -------
+    LoadedDesign
+
+    Raises
+    ------
+    DesignFileError
+        As :func:`load_design`.
+    """
+    from .datafiles import decode_text, read_file_bytes, resolve_data_path
+
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise DesignFileError("", "design file not found", source=str(path)) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise DesignFileError("", f"cannot read the design file: {exc}", source=str(path)) from None
-    design = loads_design(text, source=str(path))
+    if not path.exists() and not path.is_symlink():
+        raise DesignFileError("", "design file not found", source=str(path))
+    data = read_file_bytes(path, "design")
+    design = loads_design(decode_text(data, str(path), "design"), source=str(path))
     for index, scenario in enumerate(design.motion):
         if scenario.trace is not None:
-            resolved = trace_path(scenario, path)
-            if not resolved.is_file():
-                raise DesignFileError(
-                    f"motion[{index}].trace",
-                    f"trace file {scenario.trace!r} not found (looked for {resolved}); "
-                    "trace paths are relative to the design file",
-                    source=str(path),
-                )
+            resolve_data_path(scenario.trace, path.parent, f"motion[{index}].trace", source=str(path),
+                              allow_outside=allow_outside_paths, what="trace file")
     if design.sensor.sweep is not None:
-        sweep = Path(design.sensor.sweep)
-        resolved = sweep if sweep.is_absolute() else path.parent / sweep
-        if not resolved.is_file():
-            raise DesignFileError(
-                "sensor.sweep",
-                f"calibration sweep file {design.sensor.sweep!r} not found (looked for {resolved}); "
-                "sweep paths are relative to the design file",
-                source=str(path),
-            )
-    return design
+        resolve_data_path(design.sensor.sweep, path.parent, "sensor.sweep", source=str(path),
+                          allow_outside=allow_outside_paths, what="calibration sweep file")
+    return LoadedDesign(design, path, hashlib.sha256(data).hexdigest())
 
 
 def loads_design(text: str, source: str = "<string>") -> d.ActuatorDesign:
@@ -156,6 +194,9 @@ def loads_design(text: str, source: str = "<string>") -> d.ActuatorDesign:
 
     try:
         data = tomllib.loads(text)
+    except RecursionError:
+        raise DesignFileError("", "arrays or tables are nested too deeply to read; a design file needs at "
+                                  "most a few levels", source=source) from None
     except tomllib.TOMLDecodeError as exc:
         match = _TOML_LINE.search(str(exc))
         line = int(match.group(1)) if match else None
@@ -499,7 +540,8 @@ def dump_design(design: d.ActuatorDesign) -> str:
     return header + tomli_w.dumps(_design_dict(design))
 
 
-def save_design(design: d.ActuatorDesign, path: str | os.PathLike, overwrite: bool = False) -> Path:
+def save_design(design: d.ActuatorDesign, path: str | os.PathLike, overwrite: bool = False, *,
+                expected_sha256: str | None = None) -> Path:
     """Write a design file atomically, keeping what the user wrote in a file it replaces.
 
     A new file gets :func:`dump_design`'s text. Saving over an existing
@@ -513,8 +555,20 @@ def save_design(design: d.ActuatorDesign, path: str | os.PathLike, overwrite: bo
     each save replaces the last backup). When nothing changed the file and
     its backup are left alone.
 
-    Every file is written to a temporary file in the same folder and moved
-    into place with :func:`os.replace`, so a crash never leaves half a file.
+    Saving is safe against other writers and odd files:
+
+    * with ``expected_sha256`` (the fingerprint of the bytes the design was
+      loaded from, :class:`LoadedDesign`), a file that changed on disk since
+      is not touched: the save is refused, so nobody's edits are reverted;
+    * concurrent saves of the same file (threads or processes) take turns
+      on an exclusive lock; a save that would overwrite a newer version is
+      refused as above;
+    * a symbolic link is followed: its target is edited and the link stays;
+    * a read-only file (no write permission bit) is refused;
+    * every file is written to a temporary file beside the target and moved
+      into place with :func:`os.replace`, then read back: a save that did
+      not stick raises instead of returning. Temporary files left by a save
+      that was killed are removed by the next save.
 
     Parameters
     ----------
@@ -524,6 +578,9 @@ def save_design(design: d.ActuatorDesign, path: str | os.PathLike, overwrite: bo
     overwrite : bool
         Replace an existing file. Without it an existing file raises
         :class:`FileExistsError`.
+    expected_sha256 : str, optional
+        Refuse to save over the file unless its bytes still have this
+        SHA-256 (hex).
 
     Returns
     -------
@@ -535,51 +592,223 @@ def save_design(design: d.ActuatorDesign, path: str | os.PathLike, overwrite: bo
     FileExistsError
         When the file exists and ``overwrite`` is false.
     DesignFileError
-        When the design would not read back unchanged, or the existing file
-        is not a design file turnkit reads (bad TOML, unknown keys, invalid
-        values): it is then left untouched rather than overwritten.
+        When the design would not read back unchanged, the existing file is
+        not a design file turnkit reads (bad TOML, unknown keys, invalid
+        values), it changed since it was loaded, it is read-only, or the
+        written file did not read back: it is then left untouched.
     """
-    path = Path(path)
+    return _save(design, Path(path), overwrite, expected_sha256)[0]
+
+
+def save_loaded_design(design: d.ActuatorDesign, loaded: LoadedDesign) -> LoadedDesign:
+    """Save ``design`` over the file ``loaded`` came from, only if that file is unchanged since.
+
+    Parameters
+    ----------
+    design : ActuatorDesign
+        The design to write.
+    loaded : LoadedDesign
+        What was read from the file (:func:`load_design_file`) or returned by
+        the previous save.
+
+    Returns
+    -------
+    LoadedDesign
+        The design, its file and the fingerprint of the bytes now on disk
+        (pass it to the next save).
+
+    Raises
+    ------
+    DesignFileError
+        As :func:`save_design`; in particular when the file changed on disk
+        since ``loaded`` was read (nothing is written then).
+    """
+    path, digest = _save(design, loaded.path, True, loaded.sha256)
+    return LoadedDesign(design, path, digest)
+
+
+def _sha256(data: bytes) -> str:
+    return hashlib.sha256(data).hexdigest()
+
+
+def _save(design: d.ActuatorDesign, path: Path, overwrite: bool, expected: str | None) -> tuple[Path, str]:
     text = dump_design(design)
     # A design that does not read back the same would silently lose data.
     if loads_design(text, source=str(path)) != design:
         raise DesignFileError("", "the design does not read back unchanged; not saved", source=str(path))
-    if not path.exists():
-        _write_atomic(path, text.encode("utf-8"), must_not_exist=not overwrite)
-        return path
+    target = _save_target(path)
+    if not os.path.lexists(target):
+        data = text.encode("utf-8")
+        try:
+            _create_atomic(target, data, str(path))
+            return path, _sha256(data)
+        except FileExistsError:
+            if not overwrite:
+                raise FileExistsError(f"{path} exists; pass overwrite=True to replace it") from None
     if not overwrite:
         raise FileExistsError(f"{path} exists; pass overwrite=True to replace it")
-    old_bytes = path.read_bytes()
-    new_text = _merge_into_file(old_bytes, design, str(path))
-    if new_text is None:
-        return path
-    new_bytes = new_text.encode("utf-8")
-    mode = path.stat().st_mode
-    _write_atomic(path.with_name(path.name + ".bak"), old_bytes, mode=mode)
-    if path.read_bytes() != old_bytes:
-        raise DesignFileError("", "the file changed on disk while saving; not saved (the version read before "
-                                  f"the change is in {path.name}.bak)", source=str(path))
-    _write_atomic(path, new_bytes, mode=mode)
-    return path
+    with _locked(target, str(path)) as handle:
+        old_bytes = handle.read()
+        if expected is not None and _sha256(old_bytes) != expected:
+            raise DesignFileError("", "the file changed on disk since this design was loaded (someone or "
+                                      "something else saved it); not saved, so their changes are kept. Load "
+                                      "the file again, or save your design to another file", source=str(path))
+        info = os.fstat(handle.fileno())
+        if not info.st_mode & 0o222 or not os.access(target, os.W_OK):
+            raise DesignFileError("", "the file is read-only; not saved (make it writable, or save to another "
+                                      "file)", source=str(path))
+        _remove_stale_temporaries(target)
+        bom = codecs.BOM_UTF8 if old_bytes.startswith(codecs.BOM_UTF8) else b""
+        new_text = _merge_into_file(old_bytes[len(bom):], design, str(path))
+        if new_text is None:
+            return path, _sha256(old_bytes)
+        new_bytes = bom + new_text.encode("utf-8")
+        _write_atomic(target.with_name(target.name + ".bak"), old_bytes, mode=info.st_mode, source=str(path))
+        _write_atomic(target, new_bytes, mode=info.st_mode, source=str(path))
+        try:
+            stuck = target.read_bytes() == new_bytes
+        except OSError:
+            stuck = False
+        if not stuck:
+            raise DesignFileError("", "the file on disk is not what was written (another program replaced it "
+                                      f"at the same moment); the version read before is in {target.name}.bak",
+                                  source=str(path))
+        return path, _sha256(new_bytes)
 
 
-def _write_atomic(path: Path, data: bytes, must_not_exist: bool = False, mode: int | None = None) -> None:
-    """Write ``data`` to a temporary file beside ``path`` and move it into place."""
+def _save_target(path: Path) -> Path:
+    """The file a save writes: a symbolic link's target (the link stays a link)."""
+    try:
+        target = Path(os.path.realpath(path, strict=False))
+    except OSError as exc:
+        raise DesignFileError("", f"cannot follow the path: {exc.strerror}", source=str(path)) from None
+    if os.path.islink(target):  # realpath stops at a loop and returns a link
+        raise DesignFileError("", "the path is a loop of symbolic links; not saved", source=str(path))
+    if os.path.lexists(target) and not stat.S_ISREG(os.stat(target).st_mode):
+        raise DesignFileError("", "not a regular file (a folder, pipe or device); not saved", source=str(path))
+    return target
+
+
+class _locked:
+    """Open ``target`` and hold an exclusive lock on the file that is at that path now.
+
+    A save replaces the file (a new inode), so after taking the lock the
+    opened file is compared with the one at the path; a stale one is dropped
+    and the lock taken again. Where ``fcntl`` is missing (Windows) saves are
+    not serialised.
+    """
+
+    def __init__(self, target: Path, source: str):
+        self.target = target
+        self.source = source
+        self.handle = None
+
+    def __enter__(self):
+        try:
+            import fcntl
+        except ImportError:  # pragma: no cover - not on POSIX
+            fcntl = None
+        for _ in range(1000):
+            try:
+                handle = open(self.target, "rb")
+            except FileNotFoundError:
+                raise DesignFileError("", "the file was removed while saving; not saved", source=self.source) \
+                    from None
+            except OSError as exc:
+                raise DesignFileError("", f"cannot open the file: {exc.strerror}", source=self.source) from None
+            try:
+                if fcntl is not None:
+                    fcntl.flock(handle.fileno(), fcntl.LOCK_EX)
+                if os.path.samestat(os.fstat(handle.fileno()), os.stat(self.target)):
+                    self.handle = handle
+                    return handle
+            except FileNotFoundError:
+                pass
+            except BaseException:
+                handle.close()
+                raise
+            handle.close()
+        raise DesignFileError("", "the file keeps being replaced by another program; not saved", source=self.source)
+
+    def __exit__(self, *exc) -> None:
+        self.handle.close()  # closing releases the lock
+
+
+def _temporary_prefix(path: Path) -> str:
+    return f".{path.name}."
+
+
+def _remove_stale_temporaries(path: Path) -> None:
+    """Remove temporary files beside ``path`` left by a save whose process is gone."""
+    prefix = _temporary_prefix(path)
+    try:
+        names = os.listdir(path.parent if str(path.parent) else ".")
+    except OSError:
+        return
+    for name in names:
+        if not (name.startswith(prefix) and name.endswith(".tmp")):
+            continue
+        pid_text = name[len(prefix):].split(".", 1)[0]
+        if not pid_text.isdigit() or int(pid_text) == os.getpid():
+            continue
+        try:
+            os.kill(int(pid_text), 0)
+        except ProcessLookupError:
+            try:
+                os.unlink(path.parent / name)
+            except OSError:
+                pass
+        except OSError:  # alive, owned by someone else
+            continue
+
+
+def _new_file_mode() -> int:
+    # A new file gets the permissions of any new file (mkstemp makes it private).
+    umask = os.umask(0)
+    os.umask(umask)
+    return 0o666 & ~umask
+
+
+def _temporary(path: Path, data: bytes, mode: int, source: str) -> str:
+    """A temporary file beside ``path`` holding ``data`` (flushed to disk); returns its name."""
     folder = path.parent if str(path.parent) else Path(".")
-    fd, temp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+    try:
+        fd, temp_name = tempfile.mkstemp(prefix=f"{_temporary_prefix(path)}{os.getpid()}.", suffix=".tmp",
+                                         dir=folder)
+    except OSError as exc:
+        raise DesignFileError("", f"cannot write in the folder {folder}: {exc.strerror}; not saved",
+                              source=source) from None
     try:
         with os.fdopen(fd, "wb") as handle:
             handle.write(data)
             handle.flush()
             os.fsync(handle.fileno())
-        if mode is None:
-            # A new file gets the permissions of any new file (mkstemp makes it private).
-            umask = os.umask(0)
-            os.umask(umask)
-            mode = 0o666 & ~umask
         os.chmod(temp_name, stat.S_IMODE(mode))
-        if must_not_exist and path.exists():
-            raise FileExistsError(f"{path} exists; pass overwrite=True to replace it")
+    except BaseException:
+        os.unlink(temp_name)
+        raise
+    return temp_name
+
+
+def _create_atomic(path: Path, data: bytes, source: str) -> None:
+    """Create ``path`` holding ``data``; FileExistsError when it exists (never replaces a file)."""
+    temp_name = _temporary(path, data, _new_file_mode(), source)
+    try:
+        try:
+            os.link(temp_name, path)
+        except FileExistsError:
+            raise
+        except OSError:  # a file system without hard links: exclusive create instead
+            with open(path, "xb") as handle:
+                handle.write(data)
+    finally:
+        os.unlink(temp_name)
+
+
+def _write_atomic(path: Path, data: bytes, mode: int | None = None, source: str = "") -> None:
+    """Write ``data`` to a temporary file beside ``path`` and move it into place."""
+    temp_name = _temporary(path, data, _new_file_mode() if mode is None else mode, source or str(path))
+    try:
         os.replace(temp_name, path)
     except BaseException:
         if os.path.exists(temp_name):

@@ -816,9 +816,6 @@ def _read_source(source) -> tuple[str, str]:
         return getattr(source, "name", "<stream>"), source.read()
     if isinstance(source, str) and "\n" in source:
         return "<text>", source
-    path = os.fspath(source)
-    try:
-        with open(path, encoding="utf-8") as fh:
-            return path, fh.read()
-    except OSError as exc:
-        raise DesignFileError("", f"cannot read the trace: {exc.strerror}", source=path) from None
+    from .datafiles import read_text_file
+
+    return read_text_file(source, "trace")
