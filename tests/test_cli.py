@@ -302,10 +302,24 @@ def test_lab_starts_jupyterlab_on_the_notebook_and_passes_other_options(tmp_path
     notebook = tmp_path / "vent.ipynb"
     notebook.write_text("{}")
     calls = []
-    monkeypatch.setattr(cli.subprocess, "call", lambda command: calls.append(command) or 0)
+    monkeypatch.setattr(cli, "_run_forwarding_signals", lambda command: calls.append(command) or 0)
     monkeypatch.setattr(cli.os, "geteuid", lambda: 1000)
+    monkeypatch.chdir(tmp_path)
     assert main(["lab", str(notebook), "--port", "8890", "--no-browser"]) == 0
     assert calls == [[sys.executable, "-m", "jupyterlab", str(notebook), "--port", "8890", "--no-browser"]]
+
+
+def test_lab_shows_the_notebooks_folder_when_started_elsewhere(tmp_path, monkeypatch):
+    # Lab's file browser must show the folder of the notebook (and its design file).
+    (tmp_path / "designs").mkdir()
+    notebook = tmp_path / "designs" / "vent.ipynb"
+    notebook.write_text("{}")
+    (tmp_path / "elsewhere").mkdir()
+    monkeypatch.chdir(tmp_path / "elsewhere")
+    calls = []
+    monkeypatch.setattr(cli, "_run_forwarding_signals", lambda command: calls.append(command) or 0)
+    assert main(["lab", str(notebook)]) == 0
+    assert f"--ServerApp.root_dir={notebook.parent}" in calls[0]
 
 
 def test_lab_adds_allow_root_only_when_running_as_root(monkeypatch):
@@ -316,9 +330,23 @@ def test_lab_adds_allow_root_only_when_running_as_root(monkeypatch):
     assert "--allow-root" not in cli.lab_command(None)
 
 
-def test_lab_returns_jupyterlabs_exit_status(monkeypatch):
-    monkeypatch.setattr(cli.subprocess, "call", lambda command: 3)
+def test_lab_returns_jupyterlabs_exit_status(monkeypatch, tmp_path):
+    monkeypatch.chdir(tmp_path)
+    monkeypatch.setattr(cli.subprocess, "Popen", lambda command: _Exited(3))
     assert main(["lab"]) == 3
+
+
+class _Exited:
+    """A finished child process with a given exit status."""
+
+    def __init__(self, status):
+        self.returncode = status
+
+    def wait(self, timeout=None):
+        return self.returncode
+
+    def poll(self):
+        return self.returncode
 
 
 def test_lab_on_a_missing_notebook_exits_2(tmp_path, capsys):

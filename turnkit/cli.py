@@ -24,7 +24,10 @@ import argparse
 import importlib.util
 import json
 import os
+import re
 import shlex
+import shutil
+import signal
 import subprocess
 import sys
 import warnings
@@ -34,7 +37,8 @@ from typing import Sequence
 from . import __version__
 from .errors import DesignFileError, DesignValueError, TurnkitError, TurnkitWarning
 
-__all__ = ["main", "build_parser", "lab_command", "EXIT_PASS", "EXIT_FAIL", "EXIT_ERROR", "TEMPLATES"]
+__all__ = ["main", "build_parser", "lab_command", "demo_checkout", "copy_demo", "EXIT_PASS", "EXIT_FAIL",
+           "EXIT_ERROR", "TEMPLATES", "DEMO_FOLDERS"]
 
 #: Exit status when every requirement passes.
 EXIT_PASS = 0
@@ -145,6 +149,9 @@ def build_parser() -> argparse.ArgumentParser:
     size.add_argument("--format", choices=("html", "md", "json", "txt"), default="html",
                       help="summary format for several FILEs written to a folder (default: html)")
     size.add_argument("--overwrite", action="store_true", help="replace OUT if it exists")
+    size.add_argument("--allow-outside-paths", action="store_true",
+                      help="let the design file name trace and sweep files outside its own folder (off by "
+                           "default, so a design file from elsewhere cannot make turnkit read other files)")
 
     sub.add_parser("schema", help="print the JSON Schema of the design-file format",
                    description="Print the JSON Schema (draft 2020-12) that describes design files, "
@@ -156,6 +163,9 @@ def build_parser() -> argparse.ArgumentParser:
                                      "know are passed to JupyterLab.",
                          epilog=_LAB_EPILOG, formatter_class=fmt)
     lab.add_argument("notebook", metavar="NOTEBOOK", nargs="?", type=Path, help="the notebook to open")
+    lab.add_argument("--demo-dir", metavar="DIR", type=Path, default=None,
+                     help="where a demo notebook of a turnkit checkout is copied before it is opened "
+                          "(default: ~/turnkit-demo); the checkout itself is never changed")
     return parser
 
 
@@ -181,14 +191,14 @@ def main(argv: Sequence[str] | None = None) -> int:
             return _new(args.name, args.dir)
         if args.command == "size":
             if len(args.file) == 1:
-                return _size(args.file[0], args.output, args.overwrite)
-            return _size_batch(args.file, args.output, args.format, args.overwrite)
+                return _size(args.file[0], args.output, args.overwrite, args.allow_outside_paths)
+            return _size_batch(args.file, args.output, args.format, args.overwrite, args.allow_outside_paths)
         if args.command == "schema":
             return _schema()
-        return _lab(args.notebook, extra)
+        return _lab(args.notebook, extra, args.demo_dir)
     except (DesignFileError, DesignValueError, TurnkitError, FileExistsError, FileNotFoundError,
             IsADirectoryError, PermissionError) as exc:
-        print(f"turnkit {args.command}: error: {exc}", file=sys.stderr)
+        print(f"turnkit {args.command}: error: {_printable(str(exc))}", file=sys.stderr)
         return EXIT_ERROR
     except Exception:
         # A crash must not read as "a requirement fails" (status 1) in someone's CI.
@@ -201,8 +211,17 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 
 def _err(command: str, message: str) -> int:
-    print(f"turnkit {command}: error: {message}", file=sys.stderr)
+    print(f"turnkit {command}: error: {_printable(message)}", file=sys.stderr)
     return EXIT_ERROR
+
+
+# Control characters (terminal escape sequences start with ESC) are shown, not sent to the terminal.
+_CONTROL = re.compile(r"[\x00-\x08\x0b-\x1f\x7f-\x9f]")
+
+
+def _printable(text: str) -> str:
+    """``text`` with control characters written as escapes (``\\x1b``), so a name cannot drive the terminal."""
+    return _CONTROL.sub(lambda m: m.group(0).encode("unicode_escape").decode("ascii"), text)
 
 
 # --- new --------------------------------------------------------------------------
@@ -289,7 +308,7 @@ def _create(path: Path, text: str) -> None:
 
 # --- size -------------------------------------------------------------------------
 
-def _size(file: Path, output: Path | None, overwrite: bool) -> int:
+def _size(file: Path, output: Path | None, overwrite: bool, allow_outside_paths: bool = False) -> int:
     from .designfile import load_design
     from .export import SUFFIXES, to_text, write_summary
     from .sizing import size
@@ -301,16 +320,22 @@ def _size(file: Path, output: Path | None, overwrite: bool) -> int:
         return _err("size", f"{output} already exists; add --overwrite to replace it")
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", TurnkitWarning)
-        design = load_design(file)
-        # Trace files are named relative to the design file.
-        # Plot data only when the summary shows it (the printed text has no plots).
-        wants_curves = output is not None and output.suffix.lower() != ".txt"
-        result = size(design, base_dir=file.parent, curves=wants_curves)
+        try:
+            design = load_design(file, allow_outside_paths=allow_outside_paths)
+            # Trace files are named relative to the design file.
+            # Plot data only when the summary shows it (the printed text has no plots).
+            wants_curves = output is not None and output.suffix.lower() != ".txt"
+            result = size(design, base_dir=file.parent, curves=wants_curves)
+        except (DesignFileError, DesignValueError) as exc:
+            # Every error names the design file, also those found while sizing.
+            if str(file) in str(exc):
+                raise
+            raise TurnkitError(f"{file}: {exc}") from None
     shown = set(result.warnings)
     for w in caught:
         if issubclass(w.category, TurnkitWarning) and str(w.message) not in shown:
             shown.add(str(w.message))
-            print(f"turnkit size: warning: {w.message}", file=sys.stderr)
+            print(f"turnkit size: warning: {_printable(str(w.message))}", file=sys.stderr)
         elif not issubclass(w.category, TurnkitWarning):
             warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     if output is None:
@@ -320,15 +345,24 @@ def _size(file: Path, output: Path | None, overwrite: bool) -> int:
         verdict = "PASS" if result.passed else "FAIL"
         failed = [c.label for c in result.failed_checks] + [f"motion '{s.name}'" for s in result.scenarios
                                                             if not s.passed]
-        print(f"wrote {path} ({verdict}" + (f": {'; '.join(failed)} failed)" if failed else ")"))
+        print(_printable(f"wrote {path} ({verdict}" + (f": {'; '.join(failed)} failed)" if failed else ")")))
     return EXIT_PASS if result.passed else EXIT_FAIL
 
 
-def _size_batch(files: Sequence[Path], folder: Path | None, fmt: str, overwrite: bool) -> int:
+def _size_batch(files: Sequence[Path], folder: Path | None, fmt: str, overwrite: bool,
+                allow_outside_paths: bool = False) -> int:
     """Size several design files; the worst outcome sets the exit status."""
     if folder is not None:
         if folder.exists() and not folder.is_dir():
             return _err("size", f"with several design files, -o must name a folder, not the file {folder}")
+        # Two design files with the same name (from different folders) would write one summary over the other.
+        by_name: dict[str, Path] = {}
+        for file in files:
+            name = f"{file.stem}.{fmt}".casefold()
+            if name in by_name:
+                return _err("size", f"{by_name[name]} and {file} would both write {folder / f'{file.stem}.{fmt}'}; "
+                                    "nothing was written: size them into separate folders")
+            by_name[name] = file
         folder.mkdir(parents=True, exist_ok=True)
     statuses = []
     for i, file in enumerate(files):
@@ -336,11 +370,11 @@ def _size_batch(files: Sequence[Path], folder: Path | None, fmt: str, overwrite:
             _write_stdout("\n" + "=" * 78 + "\n\n")
         out = None if folder is None else folder / f"{file.stem}.{fmt}"
         try:
-            statuses.append(_size(file, out, overwrite))
+            statuses.append(_size(file, out, overwrite, allow_outside_paths))
         except (DesignFileError, DesignValueError, TurnkitError, FileExistsError, FileNotFoundError,
                 IsADirectoryError, PermissionError) as exc:
             message = str(exc) if str(file) in str(exc) else f"{file}: {exc}"
-            print(f"turnkit size: error: {message}", file=sys.stderr)
+            print(f"turnkit size: error: {_printable(message)}", file=sys.stderr)
             statuses.append(EXIT_ERROR)
     if EXIT_ERROR in statuses:
         return EXIT_ERROR
@@ -348,7 +382,11 @@ def _size_batch(files: Sequence[Path], folder: Path | None, fmt: str, overwrite:
 
 
 def _write_stdout(text: str) -> None:
-    """Print ``text``; characters the terminal's encoding lacks (e.g. "°" on some consoles) become "?"."""
+    """Print ``text``; characters the terminal's encoding lacks (e.g. "°" on some consoles) become "?".
+
+    Control characters in it (from names in a design file) are written as escapes.
+    """
+    text = _printable(text)
     try:
         sys.stdout.write(text)
     except UnicodeEncodeError:
@@ -367,25 +405,129 @@ def _schema() -> int:
 
 # --- lab --------------------------------------------------------------------------
 
-def lab_command(notebook: Path | None, extra: Sequence[str] = ()) -> list[str]:
-    """The command line that starts JupyterLab (``--allow-root`` added when running as root)."""
+def lab_command(notebook: Path | None, extra: Sequence[str] = (), root_dir: Path | None = None) -> list[str]:
+    """The command line that starts JupyterLab (``--allow-root`` added when running as root).
+
+    ``root_dir`` becomes the server's root folder (what Lab's file browser
+    shows) unless ``extra`` already chooses one.
+    """
     command = [sys.executable, "-m", "jupyterlab"]
     if notebook is not None:
         command.append(str(notebook))
     command.extend(extra)
+    chosen = any(a.startswith(("--ServerApp.root_dir", "--notebook-dir", "--ServerApp.notebook_dir"))
+                 for a in extra)
+    if root_dir is not None and not chosen:
+        command.append(f"--ServerApp.root_dir={root_dir}")
     geteuid = getattr(os, "geteuid", None)
     if geteuid is not None and geteuid() == 0 and "--allow-root" not in command:
         command.append("--allow-root")
     return command
 
 
-def _lab(notebook: Path | None, extra: Sequence[str]) -> int:
+#: The folders of a turnkit checkout that ``turnkit lab`` copies before opening a demo notebook.
+DEMO_FOLDERS = ("notebooks", "demo")
+
+
+def demo_checkout() -> Path | None:
+    """The turnkit checkout this package runs from (an editable install), or None when installed normally."""
+    root = Path(__file__).resolve().parent.parent
+    return root if all((root / folder).is_dir() for folder in DEMO_FOLDERS) else None
+
+
+def copy_demo(target: Path) -> list[Path]:
+    """Copy the checkout's demo notebooks and design files into ``target``; return the files copied.
+
+    Files already in ``target`` are kept as they are (they may hold the
+    user's own edits); only missing ones are copied.
+    """
+    root = demo_checkout()
+    if root is None:
+        raise TurnkitError("no turnkit checkout to copy the demo from")
+    copied: list[Path] = []
+    for folder in DEMO_FOLDERS:
+        for source in sorted((root / folder).rglob("*")):
+            relative = source.relative_to(root)
+            if any(part.startswith(".") for part in relative.parts) or not source.is_file():
+                continue
+            destination = target / relative
+            if destination.exists():
+                continue
+            destination.parent.mkdir(parents=True, exist_ok=True)
+            shutil.copy2(source, destination)
+            copied.append(destination)
+    return copied
+
+
+def _lab_place(notebook: Path | None, demo_dir: Path | None) -> tuple[Path | None, Path | None, str]:
+    """Where to open Lab: (notebook, root folder, message). A checkout's demo is opened on a copy."""
+    root = demo_checkout()
+    here = Path.cwd().resolve()
+    is_demo = root is not None and (
+        (notebook is not None and (root / "notebooks") in notebook.resolve().parents)
+        or (notebook is None and here == root))
+    if is_demo:
+        target = (demo_dir or Path.home() / "turnkit-demo").expanduser().resolve()
+        if target == root or root in target.parents:
+            raise TurnkitError(f"--demo-dir {target} is inside the turnkit checkout; choose a folder outside it")
+        copied = copy_demo(target)
+        opened = target / "notebooks" / notebook.name if notebook is not None else None
+        state = f"copied {len(copied)} files" if copied else "your copy from before, unchanged"
+        message = (f"turnkit lab: working on a copy of the demo in {target} ({state}); saves and exports go "
+                   "there and the checkout stays unchanged")
+        return opened, target, message
+    if notebook is None:
+        return None, None, ""
+    folder = notebook.resolve().parent
+    # Lab's file browser must show the notebook's folder, where its design file lives.
+    return notebook, (None if here == folder or here in folder.parents else folder), ""
+
+
+def _lab(notebook: Path | None, extra: Sequence[str], demo_dir: Path | None = None) -> int:
     if importlib.util.find_spec("jupyterlab") is None:
         return _err("lab", 'JupyterLab is not installed; install it with: pip install "turnkit[notebook]"')
     if notebook is not None and not notebook.is_file():
         return _err("lab", f"notebook {notebook} not found (create one with `turnkit new NAME`)")
     extra = [a for a in extra if a != "--"]
+    notebook, root_dir, message = _lab_place(notebook, demo_dir)
+    if message:
+        print(message, file=sys.stderr)
+    return _run_forwarding_signals(lab_command(notebook, extra, root_dir))
+
+
+def _run_forwarding_signals(command: list[str]) -> int:
+    """Run ``command``; SIGTERM, SIGINT and SIGHUP are passed on to it, and it never outlives this process.
+
+    Returns its exit status (128 + the signal number when a signal ended it).
+    """
+    process = subprocess.Popen(command)
+
+    def forward(signum, _frame) -> None:
+        if process.poll() is None:
+            process.send_signal(signum)
+
+    names = [getattr(signal, name) for name in ("SIGTERM", "SIGINT", "SIGHUP") if hasattr(signal, name)]
+    previous = {}
     try:
-        return subprocess.call(lab_command(notebook, extra))
-    except KeyboardInterrupt:
-        return 130
+        for signum in names:
+            try:
+                previous[signum] = signal.signal(signum, forward)
+            except ValueError:  # not the main thread: nothing to forward
+                break
+        while True:
+            try:
+                status = process.wait()
+                break
+            except KeyboardInterrupt:
+                forward(signal.SIGINT, None)
+    finally:
+        for signum, handler in previous.items():
+            signal.signal(signum, handler)
+        if process.poll() is None:
+            process.terminate()
+            try:
+                process.wait(timeout=10)
+            except subprocess.TimeoutExpired:
+                process.kill()
+                process.wait()
+    return 128 - status if status < 0 else status

@@ -38,6 +38,7 @@ from .errors import DesignValueError
 
 __all__ = [
     "FORMAT_VERSION",
+    "MAX_POLL_PERIOD_MS",
     "REQUIRED",
     "UNIT_DIMENSIONS",
     "FieldSpec",
@@ -66,6 +67,10 @@ __all__ = [
 
 #: The design-file format this module reads and writes.
 FORMAT_VERSION = 1
+
+#: Longest poll period accepted, ms (one day): longer ones count nothing useful while asleep
+#: and would overflow the simulation's poll counts.
+MAX_POLL_PERIOD_MS = 86_400_000.0
 
 
 class _Required:
@@ -617,7 +622,7 @@ class CounterDesign(_Section):
     """The quarter-turn counter fed by the latches."""
 
     FIELDS: ClassVar[tuple[FieldSpec, ...]] = (
-        FieldSpec("bits", "int", "counter width", low=4, high=64, default=16),
+        FieldSpec("bits", "int", "counter width", low=4, high=63, default=16),
         FieldSpec("signed", "bool", "true for a counter that goes below zero", default=True),
         FieldSpec("overflow", "choice", "what the counter does past its range",
                   choices=("wrap", "saturate", "fault"), default="fault"),
@@ -638,9 +643,9 @@ class ScheduleDesign(_Section):
         FieldSpec("kind", "choice", "fixed: poll every poll_period; adaptive: poll at fast_poll_period "
                   "for hold_time after motion is seen", choices=("fixed", "adaptive"), default="fixed"),
         FieldSpec("poll_period", "quantity", "time between polls while asleep", units=("ms",),
-                  low=0.0, low_open=True, default=10.0),
+                  low=0.0, low_open=True, high=MAX_POLL_PERIOD_MS, default=10.0),
         FieldSpec("fast_poll_period", "quantity", "time between polls after motion (adaptive)", units=("ms",),
-                  low=0.0, low_open=True, default=1.0),
+                  low=0.0, low_open=True, high=MAX_POLL_PERIOD_MS, default=1.0),
         FieldSpec("hold_time", "quantity", "how long fast polling lasts after the last motion (adaptive)",
                   units=("s",), low=0.0, default=2.0),
         FieldSpec("wake_time", "quantity", "time from wake-up to the supply being ready", units=("us",),
@@ -872,6 +877,9 @@ class MotionScenario(_Section):
         if linear and self.at == "motor":
             _fail(self, linear[0], "linear", "rotary (deg, rpm) when at = 'motor'",
                   hint="the motor shaft turns; give linear motion at = 'output'")
+        if self.kind in ("trapezoid", "bursts") and 0.0 in (self.speed_rpm, self.speed_mm_per_s):
+            _fail(self, "speed", 0.0, f"more than 0 for a '{self.kind}' motion",
+                  hint="a move or burst at zero speed never covers its distance")
         if linear and rotary:
             _fail(self, linear[0], "linear", f"rotary like {rotary[0]}",
                   hint="give all speeds and distances of one scenario as rotary (deg, rpm) or all as linear "

@@ -724,7 +724,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
                                                f"{_counter_bits_needed(quarter_turns_stroke, settings.signed)} bits"))
 
     # -- sensor and latches -------------------------------------------------
-    summary = _sensor_summary(design.sensor, stages, bool(design.sensor.calibrated))
+    summary = _sensor_summary_named(design.sensor, stages, bool(design.sensor.calibrated))
     motor_peak = summary.peak_error_deg
     add("sensor_peak_error_deg", "Sensor angle error at the motor, peak"
         + (" (after calibration)" if design.sensor.calibrated else " (uncalibrated)"), motor_peak, "deg", "sensor")
@@ -806,8 +806,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
             "ms", "schedule", equation="max_poll_period")
         checks.append(_check("backdrive_speed", "Counter follows the required back-drive speed while asleep",
                             out_speed, req_speed, out_speed_unit, ">=",
-                            advice=f"poll at least every {max_period_s * 1e3:.4g} ms (with jitter included), "
-                                   "or lower the reduction"))
+                            advice=_backdrive_advice(max_period_s, awake_s)))
 
     # -- power and battery ---------------------------------------------------
     pack = build_battery(design)
@@ -909,7 +908,8 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
                             advice="poll less often or cut the sleep current"))
 
     # -- conflicts between speed and life --------------------------------------
-    if max_period_s is not None and life is not None and req.battery_life_years is not None:
+    if max_period_s is not None and life is not None and req.battery_life_years is not None \
+            and max_period_s > awake_s:
         life_at_limit = float(batt.life_years(
             pack, power.average_current_uA(profile, **{**sched_kw, "poll_period_s": max_period_s}),
             temperature_C=temperature_C, usable_fraction=usable, warn=False))
@@ -927,6 +927,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     scenarios: list[Scenario] = []
     base = str(Path(base_dir).resolve()) if base_dir is not None else None
     if simulate:
+        _refuse_unbounded_work(design, base)
         for sc in design.motion:
             result, peak = _simulate_scenario(sc, stages, schedule, settings, base)
             _, err = result.output_error(train)
@@ -1125,3 +1126,139 @@ def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
                      note=f"peak {np.max(np.abs(summary.error_before_deg)):.3g} deg before, "
                           f"{np.max(np.abs(summary.error_after_deg)):.3g} deg after calibration"))
     return out
+
+
+# ---------------------------------------------------------------------------
+# bounded work: an estimate before simulating
+# ---------------------------------------------------------------------------
+
+#: Most polls simulated one by one (while something moves) in one sizing, over all scenarios.
+#: Idle time is counted in closed form and costs nothing; at some 5·10⁷ polls/s on a laptop
+#: core this keeps one sizing under about twenty seconds, in bounded memory (polls go in chunks).
+MAX_SIMULATED_POLLS = 1e9
+#: Most back-drive bursts drawn for one scenario (each is a few numbers in memory).
+MAX_BURSTS = 2e6
+
+
+def estimate_work(design: ActuatorDesign, base_dir: str | Path | None = None) -> dict[str, float]:
+    """How much simulation sizing ``design`` takes, counted before any of it is done.
+
+    Each motion scenario is simulated poll by poll only while it moves, so its
+    cost is about the time in motion divided by the shortest poll period
+    (for an adaptive schedule, plus the fast-polling hold after each motion).
+    Bursts are counted from ``bursts_per_day × duration`` without drawing
+    them; other shapes are built (cheap) and their motion spans summed; a
+    trace is read to find its span.
+
+    Parameters
+    ----------
+    design : ActuatorDesign
+        The design.
+    base_dir : path, optional
+        Folder that relative trace paths are relative to.
+
+    Returns
+    -------
+    dict
+        ``{"polls": polls simulated one by one, "bursts": bursts drawn in the
+        largest bursts scenario, "by_scenario": {name: polls}}`` (counts).
+    """
+    return _estimate_work_cached(tuple(design.motion), design.schedule, tuple(design.gear_train),
+                                 str(base_dir) if base_dir is not None else None)
+
+
+@lru_cache(maxsize=64)
+def _estimate_work_cached(motion: tuple, schedule, stages: tuple, base_dir: str | None) -> dict[str, float]:
+    # Cached: the dashboard re-sizes on every slider move and a trace would be read each time.
+    train = _train_cached(stages)[0]
+    periods = [schedule.poll_period_ms]
+    if schedule.kind == "adaptive":
+        periods.append(schedule.fast_poll_period_ms)
+    shortest_s = min(periods) / 1e3
+    hold_s = schedule.hold_time_s if schedule.kind == "adaptive" else 0.0
+    by_scenario: dict[str, float] = {}
+    most_bursts = 0.0
+    for sc in motion:
+        if sc.kind == "bursts":
+            count, mean_s = _burst_count(sc, train)
+            most_bursts = max(most_bursts, count)
+            moving_s = min(count * mean_s, sc.duration_s)
+            episodes = count
+        else:
+            profile, duration, _ = build_motion(sc, train, Path(base_dir) if base_dir is not None else None)
+            starts, ends = profile.motion_intervals()
+            moving_s = float(np.sum(np.minimum(ends, duration) - np.maximum(starts, 0.0))) if np.size(starts) else 0.0
+            episodes = float(np.size(starts))
+        by_scenario[sc.name] = moving_s / shortest_s + episodes * hold_s / shortest_s + episodes
+    return {"polls": float(sum(by_scenario.values())), "bursts": most_bursts, "by_scenario": by_scenario}
+
+
+def _burst_count(sc: MotionScenario, train) -> tuple[float, float]:
+    """Expected number of bursts over the scenario, and their mean length (s), as ``build_motion`` draws them."""
+    speed = abs(_scenario_motor(sc, train, "speed")[0] or 0.0)
+    distance = abs(_scenario_motor(sc, train, "distance")[0] or 0.0)
+    mean_s = 0.75 * distance / (speed * 6.0) if speed > 0 else math.inf
+    return sc.duration_s / (86400.0 / sc.bursts_per_day + mean_s), mean_s
+
+
+def _refuse_unbounded_work(design: ActuatorDesign, base_dir: str | Path | None) -> None:
+    """Raise before simulating when :func:`estimate_work` exceeds the documented limits."""
+    work = estimate_work(design, base_dir)
+    train = _train_cached(tuple(design.gear_train))[0]
+    for index, sc in enumerate(design.motion):
+        count = _burst_count(sc, train)[0] if sc.kind == "bursts" else 0.0
+        if count > MAX_BURSTS:
+            raise DesignValueError(f"motion[{index}].bursts_per_day", sc.bursts_per_day,
+                                   f"at most {MAX_BURSTS:.3g} bursts over the duration",
+                                   hint=f"{count:.3g} bursts would be drawn for '{sc.name}'; shorten the "
+                                        "duration (a year shows the pattern) or lower bursts_per_day")
+    if not work["polls"] <= MAX_SIMULATED_POLLS:
+        name, polls = max(work["by_scenario"].items(), key=lambda item: item[1])
+        index = [sc.name for sc in design.motion].index(name)
+        sc = design.motion[index]
+        key, value, unit = ("trace", sc.trace, "") if sc.kind == "trace" else ("duration", sc.duration_s, "s")
+        raise DesignValueError(f"motion[{index}].{key}", value,
+                               f"short enough to simulate in at most {MAX_SIMULATED_POLLS:.3g} polls while moving "
+                               "(all scenarios together)", unit=unit,
+                               hint=f"the scenarios need about {work['polls']:.3g} polls, '{name}' about "
+                                    f"{polls:.3g}; shorten it or poll less often")
+
+
+# ---------------------------------------------------------------------------
+# limits named in the user's words
+# ---------------------------------------------------------------------------
+
+def _backdrive_advice(max_period_s: float, awake_s: float) -> str:
+    """Advice for a failed back-drive speed check; says so when no poll period can work."""
+    if max_period_s > awake_s:
+        return (f"poll at least every {max_period_s * 1e3:.4g} ms (with jitter included), "
+                "or lower the reduction")
+    return (f"no poll period can: the speed needs a poll every {max_period_s * 1e3:.4g} ms, shorter than the "
+            f"{awake_s * 1e3:.4g} ms each wake-up takes (wake, settle and poll time); lower the reduction (the "
+            "motor then turns slower under back-drive) or shorten the wake-up")
+
+
+def _sensor_summary_named(sensor_design, stages: tuple, calibrated: bool):
+    """:func:`_sensor_summary`, with a failed fit of the simulated calibration sweep named by the design's key.
+
+    The summary fits a simulated sweep of the sensor; with a very coarse ADC
+    (or huge noise) the sweep has gaps and cannot be fitted. That is reported
+    as ``sensor.adc_bits`` with the smallest width that fits (found with the
+    same function), not as a problem with a measured sweep file.
+    """
+    try:
+        return _sensor_summary(sensor_design, stages, calibrated)
+    except DesignValueError as exc:
+        if not exc.field.startswith("sweep"):
+            raise
+        reason = exc.args[0] if exc.args else str(exc)
+    for bits in range(sensor_design.adc_bits + 1, 33):
+        try:
+            _sensor_summary(replace(sensor_design, adc_bits=bits), stages, calibrated)
+        except DesignValueError:
+            continue
+        raise DesignValueError("sensor.adc_bits", sensor_design.adc_bits, f"at least {bits} for this sensor",
+                               unit="bit", hint="with fewer bits the angle sensor's simulated calibration sweep "
+                                                f"has gaps and cannot be fitted ({reason})")
+    raise DesignValueError("sensor", "the [sensor] section", "a sensor whose simulated calibration sweep can be "
+                                                             "fitted", hint=reason)

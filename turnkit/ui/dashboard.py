@@ -200,11 +200,17 @@ class Dashboard:
         if debounce_s < 0 or not math.isfinite(debounce_s):
             raise ValueError(f"debounce_s must be a finite number >= 0 s, not {debounce_s!r}")
         self.path: Path | None = None
+        # What was read from the file (its fingerprint), so a save never reverts someone else's edit.
+        self._loaded = None
         if isinstance(design, (str, Path)):
             self.path = Path(design)
             if load is None:
-                from ..designfile import load_design as load
-            design = load(self.path)
+                from ..designfile import load_design_file
+
+                self._loaded = load_design_file(self.path)
+                design = self._loaded.design
+            else:
+                design = load(self.path)
         self._size = size if size is not None else _default_size(self.path)
         self._save = save
         self._export = export
@@ -516,9 +522,14 @@ class Dashboard:
         if self.path is None:
             raise TurnkitError("no design file to save to: open the dashboard from a design file")
         save = self._save
-        if save is None:
-            from ..designfile import save_design as save
-        save(self.design, self.path, overwrite=True)
+        if save is None and self._loaded is not None:
+            from ..designfile import save_loaded_design
+
+            self._loaded = save_loaded_design(self.design, self._loaded)
+        else:
+            if save is None:
+                from ..designfile import save_design as save
+            save(self.design, self.path, overwrite=True)
         self._saved_design = self.design
         self.files.value = (f"<div class='tk-files' id='tk-saved'>Saved <code>{html.escape(self.path.name)}"
                             f"</code> at {time.strftime('%H:%M:%S')}</div>")
