@@ -306,7 +306,8 @@ def test_lab_starts_jupyterlab_on_the_notebook_and_passes_other_options(tmp_path
     monkeypatch.setattr(cli.os, "geteuid", lambda: 1000)
     monkeypatch.chdir(tmp_path)
     assert main(["lab", str(notebook), "--port", "8890", "--no-browser"]) == 0
-    assert calls == [[sys.executable, "-m", "jupyterlab", str(notebook), "--port", "8890", "--no-browser"]]
+    assert calls == [[sys.executable, "-m", "jupyterlab", str(notebook), "--port", "8890", "--no-browser",
+                      "--LabApp.default_url=/lab/tree/vent.ipynb"]]
 
 
 def test_lab_shows_the_notebooks_folder_when_started_elsewhere(tmp_path, monkeypatch):

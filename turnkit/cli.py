@@ -30,6 +30,7 @@ import shutil
 import signal
 import subprocess
 import sys
+import urllib.parse
 import warnings
 from pathlib import Path
 from typing import Sequence
@@ -419,6 +420,15 @@ def lab_command(notebook: Path | None, extra: Sequence[str] = (), root_dir: Path
                  for a in extra)
     if root_dir is not None and not chosen:
         command.append(f"--ServerApp.root_dir={root_dir}")
+    if notebook is not None and not chosen and not any("default_url" in a for a in extra):
+        # The printed and opened URL then shows the notebook itself, not an empty Lab.
+        base = Path(root_dir) if root_dir is not None else Path.cwd()
+        try:
+            relative = Path(notebook).resolve().relative_to(base.resolve())
+        except ValueError:
+            relative = None
+        if relative is not None:
+            command.append(f"--LabApp.default_url=/lab/tree/{urllib.parse.quote(relative.as_posix())}")
     geteuid = getattr(os, "geteuid", None)
     if geteuid is not None and geteuid() == 0 and "--allow-root" not in command:
         command.append("--allow-root")
