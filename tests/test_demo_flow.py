@@ -92,8 +92,8 @@ def test_demo_flow_works_on_a_copy_and_leaves_the_clone_clean(clone, tmp_path):
             if lab.poll() is None:
                 lab.kill()
             lab.stdout.close()
-    # SIGTERM reached JupyterLab: no server is left running.
-    assert status != 0
+    # SIGTERM reached JupyterLab, which shut down; turnkit lab returned its status. No server is left running.
+    assert status in (0, 128 + signal.SIGTERM)
     time.sleep(0.5)
     assert [pid for pid in servers if _alive(pid)] == []
     assert (demo / "demo" / "irrigation-gate-valve.toml").is_file()

@@ -72,7 +72,7 @@ def test_quantity_attribute_names_carry_their_unit():
 def test_range_text_shows_open_and_closed_bounds():
     efficiency = d.ExternalStage.field_spec("efficiency")
     assert efficiency.range_text() == "in (0, 1]"
-    assert d.CounterDesign.field_spec("bits").range_text() == "in [4, 64]"
+    assert d.CounterDesign.field_spec("bits").range_text() == "in [4, 63]"
     assert d.LeadScrewStage.field_spec("pitch").range_text() == "> 0"
     assert d.SensorDesign.field_spec("offset_x").range_text() == "any finite value"
 

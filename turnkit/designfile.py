@@ -78,6 +78,11 @@ _QUANTITY_PATTERN = r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*[^\s\d.+-].*$"
 _PERCENT_PATTERN = r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*(%|percent)\s*$"
 _TOML_LINE = re.compile(r"at line (\d+)")
 
+#: Largest design file read, bytes (1 MiB; a design file is a few kilobytes).
+MAX_DESIGN_FILE_BYTES = 1024 * 1024
+#: Most gear stages, power consumers or motion scenarios in one design file.
+MAX_TABLES_PER_ARRAY = 1000
+
 #: An example value for each canonical unit, shown in messages and the schema.
 _EXAMPLES = {
     "mm": "2 mm", "deg": "1.5 deg", "rpm": "300 rpm", "mm/s": "5 mm/s", "deg/s^2": "3600 deg/s^2",
@@ -159,6 +164,9 @@ def load_design_file(path: str | os.PathLike, *, allow_outside_paths: bool = Fal
     if not path.exists() and not path.is_symlink():
         raise DesignFileError("", "design file not found", source=str(path))
     data = read_file_bytes(path, "design")
+    if len(data) > MAX_DESIGN_FILE_BYTES:
+        raise DesignFileError("", f"the design file is {len(data)} bytes; at most {MAX_DESIGN_FILE_BYTES} are "
+                                  "read (a design file is a few kilobytes)", source=str(path))
     design = loads_design(decode_text(data, str(path), "design"), source=str(path))
     for index, scenario in enumerate(design.motion):
         if scenario.trace is not None:
@@ -192,6 +200,9 @@ def loads_design(text: str, source: str = "<string>") -> d.ActuatorDesign:
     """
     import tomllib
 
+    if len(text) > MAX_DESIGN_FILE_BYTES:
+        raise DesignFileError("", f"the design text is {len(text)} characters; at most {MAX_DESIGN_FILE_BYTES} "
+                                  "are read", source=source)
     try:
         data = tomllib.loads(text)
     except RecursionError:
@@ -231,7 +242,7 @@ class _Reader:
             raise self.error("format_version", f"missing; add format_version = {d.FORMAT_VERSION} at the top")
         version = data["format_version"]
         if isinstance(version, bool) or not isinstance(version, int) or version != d.FORMAT_VERSION:
-            raise self.error("format_version", f"{version!r} is not a format this turnkit reads "
+            raise self.error("format_version", f"{_short(version)} is not a format this turnkit reads "
                                                f"(it reads format_version = {d.FORMAT_VERSION})")
         kwargs = self.fields(d.ActuatorDesign, {k: v for k, v in data.items() if k in
                                                ("format_version", "name", "description")}, "")
@@ -256,7 +267,7 @@ class _Reader:
             raise self.error(f"{path}.kind", f"missing; a stage needs kind = one of {', '.join(kinds)}")
         kind = table["kind"]
         if kind not in d.STAGE_KINDS:
-            raise self.error(f"{path}.kind", f"{kind!r} is not a stage kind; expected one of "
+            raise self.error(f"{path}.kind", f"{_short(kind)} is not a stage kind; expected one of "
                                              f"{', '.join(kinds)}{self.suggest(kind, kinds)}")
         rest = {k: v for k, v in table.items() if k != "kind"}
         return self.section(d.STAGE_KINDS[kind], rest, path, extra_keys=("kind",))
@@ -297,7 +308,7 @@ class _Reader:
         value = data[key]
         where = f"{path}.{key}" if path else key
         if not isinstance(value, dict):
-            raise self.error(where, f"must be a table ([{where}]), not {value!r}")
+            raise self.error(where, f"must be a table ([{where}]), not {_short(value)}")
         return value
 
     def array_of_tables(self, data: dict, key: str, path: str) -> list:
@@ -306,7 +317,9 @@ class _Reader:
         value = data[key]
         where = f"{path}.{key}" if path else key
         if not isinstance(value, list) or not all(isinstance(v, dict) for v in value):
-            raise self.error(where, f"must be an array of tables ([[{where}]]), not {value!r}")
+            raise self.error(where, f"must be an array of tables ([[{where}]]), not {_short(value)}")
+        if len(value) > MAX_TABLES_PER_ARRAY:
+            raise self.error(where, f"has {len(value)} entries; at most {MAX_TABLES_PER_ARRAY} are read")
         return value
 
     def unknown_keys(self, table: dict, known: tuple[str, ...], path: str, extra: tuple[str, ...] = ()) -> None:
@@ -346,46 +359,46 @@ class _Reader:
             return {spec.key: number}
         if kind == "number":
             if isinstance(raw, bool) or not isinstance(raw, (int, float)):
-                raise self.error(where, f"{raw!r} is not a number; expected {spec.dimension_text()}")
+                raise self.error(where, f"{_short(raw)} is not a number; expected {spec.dimension_text()}")
             self.check_range(spec, float(raw), raw, where, "")
             return {spec.key: float(raw)}
         if kind == "int":
             if isinstance(raw, bool) or not isinstance(raw, int):
-                raise self.error(where, f"{raw!r} is not an integer; expected an integer {spec.range_text()}")
+                raise self.error(where, f"{_short(raw)} is not an integer; expected an integer {spec.range_text()}")
             if not spec.in_range(raw):
-                raise self.error(where, f"{raw!r} is out of range; expected an integer {spec.range_text()}")
+                raise self.error(where, f"{_short(raw)} is out of range; expected an integer {spec.range_text()}")
             return {spec.key: raw}
         if kind == "bool":
             if not isinstance(raw, bool):
-                raise self.error(where, f"{raw!r} is not true or false")
+                raise self.error(where, f"{_short(raw)} is not true or false")
             return {spec.key: raw}
         if kind == "choice":
             if raw not in spec.choices:
-                raise self.error(where, f"{raw!r} is not allowed; expected "
+                raise self.error(where, f"{_short(raw)} is not allowed; expected "
                                         f"{spec.dimension_text()}{self.suggest(raw, spec.choices)}")
             return {spec.key: raw}
         if not isinstance(raw, str):
-            raise self.error(where, f"{raw!r} is not a string; expected {spec.dimension_text()}")
+            raise self.error(where, f"{_short(raw)} is not a string; expected {spec.dimension_text()}")
         try:
             spec.check(raw, where)
         except DesignValueError as exc:
-            raise self.error(where, f"{raw!r} is not allowed; expected {exc.allowed}") from None
+            raise self.error(where, f"{_short(raw)} is not allowed; expected {exc.allowed}") from None
         return {spec.key: raw}
 
     def quantity(self, spec: d.FieldSpec, raw: Any, where: str) -> dict:
         example = _EXAMPLES[spec.units[0]]
         if isinstance(raw, bool) or not isinstance(raw, (str, int, float)):
-            raise self.error(where, f"{raw!r} is not a quantity; expected {spec.dimension_text()} "
+            raise self.error(where, f"{_short(raw)} is not a quantity; expected {spec.dimension_text()} "
                                     f"written as a string such as {example!r}")
         outcome = _convert_quantity(raw, spec.units) if isinstance(raw, str) else ("unitless",)
         if outcome[0] == "unitless":
-            raise self.error(where, f"{raw!r} has no unit; expected {spec.dimension_text()}, "
+            raise self.error(where, f"{_short(raw)} has no unit; expected {spec.dimension_text()}, "
                                     f"written with its unit such as {example!r}")
         if outcome[0] == "unreadable":
-            raise self.error(where, f"cannot read {raw!r} as a quantity ({outcome[1]}); expected "
+            raise self.error(where, f"cannot read {_short(raw)} as a quantity ({outcome[1]}); expected "
                                     f"{spec.dimension_text()} such as {example!r}")
         if outcome[0] == "dimension":
-            raise self.error(where, f"{raw!r} is {outcome[1]}; expected {spec.dimension_text()}, "
+            raise self.error(where, f"{_short(raw)} is {outcome[1]}; expected {spec.dimension_text()}, "
                                     f"such as {example!r}")
         _, unit, value = outcome
         self.check_range(spec, value, raw, where, unit)
@@ -395,29 +408,29 @@ class _Reader:
         from .units import angle_power, parse_quantity
 
         if isinstance(raw, bool):
-            raise self.error(where, f"{raw!r} is not a fraction; expected a number such as 0.02 or '2 %'")
+            raise self.error(where, f"{_short(raw)} is not a fraction; expected a number such as 0.02 or '2 %'")
         if isinstance(raw, (int, float)):
             return float(raw)
         if not isinstance(raw, str):
-            raise self.error(where, f"{raw!r} is not a fraction; expected a number such as 0.02 or '2 %'")
+            raise self.error(where, f"{_short(raw)} is not a fraction; expected a number such as 0.02 or '2 %'")
         try:
             q = parse_quantity(raw, where)
         except DesignValueError as exc:
-            raise self.error(where, f"cannot read {raw!r} ({exc.hint}); expected a number such as 0.02 "
+            raise self.error(where, f"cannot read {_short(raw)} ({exc.hint}); expected a number such as 0.02 "
                                     "or a percentage such as '2 %'") from None
         if not q.dimensionless or angle_power(q) != 0:
-            raise self.error(where, f"{raw!r} is {_describe_dimension(q)}; expected a fraction "
+            raise self.error(where, f"{_short(raw)} is {_describe_dimension(q)}; expected a fraction "
                                     "(dimensionless), such as 0.02 or '2 %'")
         return float(q.to("dimensionless").magnitude)
 
     def check_range(self, spec: d.FieldSpec, value: float, raw: Any, where: str, unit: str) -> None:
         if not math.isfinite(value):
-            raise self.error(where, f"{raw!r} is not a finite number")
+            raise self.error(where, f"{_short(raw)} is not a finite number")
         if not spec.in_range(value):
             shown = f"{spec.range_text()} {unit}".rstrip()
             converted = f"{_number(value)} {unit}"
             got = f" (= {converted})" if unit and " ".join(str(raw).split()) != converted else ""
-            raise self.error(where, f"{raw!r}{got} is out of range; expected {spec.dimension_text()} {shown}")
+            raise self.error(where, f"{_short(raw)}{got} is out of range; expected {spec.dimension_text()} {shown}")
 
 
 @lru_cache(maxsize=4096)
@@ -439,6 +452,15 @@ def _convert_quantity(raw: str, units: tuple[str, ...]) -> tuple:
         if same_kind(q, _pint_unit(unit)):
             return ("ok", unit, float(q.to(_pint_unit(unit)).magnitude))
     return ("dimension", _describe_dimension(q))
+
+
+def _short(value: Any, limit: int = 60) -> str:
+    """``repr(value)`` cut to ``limit`` characters, safe for deeply nested values."""
+    try:
+        text = repr(value)
+    except RecursionError:
+        text = f"a deeply nested {type(value).__name__}"
+    return text if len(text) <= limit else text[:limit - 3] + "..."
 
 
 def _pint_unit(unit: str) -> str:
