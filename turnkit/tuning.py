@@ -52,6 +52,9 @@ class Tunable:
         For a choice (e.g. the battery), the allowed values; empty otherwise.
     getter, setter : callables
         ``getter(design) -> value``; ``setter(design, value) -> new design``.
+    explain : callable, optional
+        ``explain(old_design, new_design) -> str``: what a change did besides
+        this quantity (e.g. a planetary stage's planet teeth), "" when nothing.
     """
 
     key: str
@@ -66,19 +69,51 @@ class Tunable:
     integer: bool = False
     choices: tuple[str, ...] = ()
     group: str = ""
+    explain: Callable[[ActuatorDesign, ActuatorDesign], str] | None = None
 
     def get(self, design: ActuatorDesign):
         """The current value in ``design``."""
         return self.getter(design)
 
     def set(self, design: ActuatorDesign, value) -> ActuatorDesign:
-        """A new design with this quantity set to ``value`` (validated)."""
+        """A new design with this quantity set to ``value`` (validated).
+
+        ``value`` is a number in :attr:`unit`, or text as a person types it:
+        a quantity with a unit (``"50 ms"``, ``"0.05 s"``) or a bare number
+        in :attr:`unit`. The value is stored as given (no grid, no clamping);
+        the design's own validation still applies.
+        """
         if self.choices:
             if value not in self.choices:
                 raise DesignValueError(self.key, value, "one of " + ", ".join(self.choices))
         else:
+            value = self.parse(value) if isinstance(value, str) else value
             value = int(round(value)) if self.integer else float(value)
         return self.setter(design, value)
+
+    def parse(self, text: str) -> float:
+        """The number in :attr:`unit` that ``text`` ("50 ms", "0.05 s", "50") stands for.
+
+        Raises
+        ------
+        DesignValueError
+            When the text is not a quantity of this unit's dimension, or a
+            tooth count is not a whole number.
+        """
+        from .units import to_magnitude
+
+        if self.choices:
+            raise DesignValueError(self.key, text, "one of " + ", ".join(self.choices))
+        value = to_magnitude(text, self.unit or "dimensionless", self.key)
+        if not math.isfinite(value):
+            raise DesignValueError(self.key, text, "a finite number", unit=self.unit)
+        if self.integer and not float(value).is_integer():
+            raise DesignValueError(self.key, text, "a whole number")
+        return value
+
+    def in_range(self, value: float) -> bool:
+        """True when ``value`` lies in the range the control offers."""
+        return self.minimum <= value <= self.maximum
 
 
 def battery_choices() -> tuple[str, ...]:
@@ -105,6 +140,20 @@ def _planet_for(stage, ring: int) -> dict:
         return {}
     diff = ring - stage.sun_teeth
     return {"planet_teeth": diff // 2} if diff % 2 == 0 and diff > 0 else {"planet_teeth": None}
+
+
+def _planet_change(index: int):
+    """Say what a ring-teeth change did to the stage's planet teeth."""
+    def explain(old: ActuatorDesign, new: ActuatorDesign) -> str:
+        before, after = old.gear_train[index].planet_teeth, new.gear_train[index].planet_teeth
+        if before == after:
+            return ""
+        where = f"stage {index + 1}"
+        if after is None:
+            return (f"{where}: planet teeth cleared (were {before}): ring minus sun teeth is odd, so no planet "
+                    "size meshes with both")
+        return f"{where}: planet teeth changed from {before} to {after} so the planets still mesh"
+    return explain
 
 
 def _scale_currents(states: tuple[str, ...]):
@@ -162,7 +211,8 @@ def tunables_for(design: ActuatorDesign) -> tuple[Tunable, ...]:
             hi = max(stage.sun_teeth * 8, stage.ring_teeth + 10)
             out.append(Tunable(f"gear_train[{i}].ring_teeth", f"{name}: ring teeth", "", lo, hi, False, 1,
                                (lambda d, i=i: d.gear_train[i].ring_teeth),
-                               _stage_setter(i, "ring_teeth", _planet_for), integer=True, group="gear train"))
+                               _stage_setter(i, "ring_teeth", _planet_for), integer=True, group="gear train",
+                               explain=_planet_change(i)))
         elif kind == "worm":
             out.append(Tunable(f"gear_train[{i}].wheel_teeth", f"{name}: wheel teeth", "", 10,
                                max(120, stage.wheel_teeth + 20), False, 1,

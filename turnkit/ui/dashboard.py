@@ -231,9 +231,13 @@ class Dashboard:
     def _build(self) -> None:
         self.controls: dict[str, widgets.Widget] = {}
         self._by_key: dict[str, Any] = {}
+        # A typed value is kept exactly (a slider's readout snaps it to the slider's grid).
+        self.typed: dict[str, widgets.Text] = {}
         for t in self.tunables:
             self.controls[t.key] = self._make_choice(t) if getattr(t, "choices", ()) else self._make_slider(t)
             self._by_key[t.key] = t
+            if not getattr(t, "choices", ()) and hasattr(t, "parse"):
+                self.typed[t.key] = self._make_typed(t)
 
         self._header = widgets.HTML()
         self._header.add_class("tk-header-box")
@@ -283,7 +287,7 @@ class Dashboard:
             # The label sits above its control: tunable labels are long and carry the unit.
             label = widgets.HTML(f"<div class='tk-control-label'>{html.escape(_label(self._by_key[key]))}</div>")
             self.labels[key] = label
-            control_rows += [label, control]
+            control_rows += [label, control] + ([self.typed[key]] if key in self.typed else [])
         control_rows += [
             widgets.HBox([self.save_button, self.export_button, self.reset_button],
                          layout=widgets.Layout(flex_flow="row wrap", margin="8px 0 0 0")),
@@ -337,6 +341,59 @@ class Dashboard:
         slider.add_class(f"tk-control-{_css_name(t.key)}")
         slider.observe(lambda change, key=t.key: self._on_control(key, change), names="value")
         return slider
+
+    def _make_typed(self, t) -> widgets.Text:
+        unit = f" {t.unit}" if t.unit else ""
+        box = widgets.Text(value="", placeholder=f"type an exact value, e.g. {t.get(self.design):.6g}{unit}",
+                           continuous_update=False, layout=widgets.Layout(width="230px", margin="0 0 6px 0"))
+        box.add_class("tk-typed")
+        box.add_class(f"tk-typed-{_css_name(t.key)}")
+        box.observe(lambda change, key=t.key: self.type_value(key, change["new"]), names="value")
+        return box
+
+    def type_value(self, key: str, text: str) -> SizingResult:
+        """Apply a value typed by a person ("50", "50 ms", "0.05 s") exactly as typed.
+
+        A value outside the control's range, or text that is not a value of
+        the control's unit, is not applied; the reason is shown in the
+        dashboard (and kept in :attr:`error`).
+
+        Parameters
+        ----------
+        key : str
+            The control's key.
+        text : str
+            The typed text; empty text does nothing.
+
+        Returns
+        -------
+        SizingResult
+            The new result, or the current one when the value was not applied.
+        """
+        t = self._by_key[key]
+        if not str(text).strip():
+            return self.result
+        try:
+            value = t.parse(str(text))
+        except (TurnkitError, ValueError) as err:
+            self.error = str(err)
+            self._show_message(self.error, error=True)
+            return self.result
+        if not t.in_range(value):
+            unit = f" {t.unit}" if t.unit else ""
+            self.error = (f"{_label(t)}: {text.strip()} is outside this control's range "
+                          f"{t.minimum:.6g} to {t.maximum:.6g}{unit}; not applied (edit the design file for values "
+                          "beyond it)")
+            self._show_message(self.error, error=True)
+            return self.result
+        before = self.design
+        result = self.set(**{key: value})
+        if not self.error:
+            self.typed[key].value = ""
+            unit = f" {t.unit}" if t.unit else ""
+            note = t.explain(before, self.design) if getattr(t, "explain", None) else ""
+            self._show_message(f"{_label(t)} set to {value:.15g}{unit}" + (f"; {note}" if note else ""))
+        return result
 
     def _make_choice(self, c) -> widgets.Widget:
         options = [(_choice_label(c.key, value), value) for value in c.choices]
@@ -427,7 +484,10 @@ class Dashboard:
             self._show_message(self.error, error=True)
             return self.result
         self.error = ""
-        self._show_message("")
+        # A control that also changed something else (a planetary stage's planet teeth) says so.
+        notes = [t.explain(self.design, design) for t in (self._by_key[k] for k in values)
+                 if getattr(t, "explain", None)]
+        self._show_message("; ".join(n for n in notes if n))
         self._apply(design, result)
         self.last_update_s = time.perf_counter() - start
         return result
