@@ -419,6 +419,10 @@ def build_motion(sc: MotionScenario, train, base_dir: Path | None = None) -> tup
             path = Path(sc.trace)
             if not path.is_absolute() and base_dir is not None:
                 path = Path(base_dir) / path
+            if base_dir is None and not path.is_absolute() and not path.exists():
+                raise DesignValueError(f"{where}.trace", sc.trace, "a trace file that exists",
+                                       hint="trace paths are relative to the design file's folder: pass "
+                                            "base_dir=<that folder> to size()")
             prof = load_trace_csv(path, train=train, at_output=(sc.at == "output"), start_angle_deg=start_deg)
             t = np.asarray(prof.times_s if hasattr(prof, "times_s") else prof.profile.times_s, dtype=float)
             ang = np.asarray(prof.angle_deg(t), dtype=float)
