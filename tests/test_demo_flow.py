@@ -1,4 +1,4 @@
-"""The README's demo flow (open the demo in Lab, tune, Save, Export, stop Lab) leaves a clone of the repository clean."""
+"""The README's demo flow (open the demo in Lab, tune, Save, Export, stop Lab) leaves a clone clean."""
 
 from __future__ import annotations
 

@@ -1167,34 +1167,38 @@ def estimate_work(design: ActuatorDesign, base_dir: str | Path | None = None) ->
         ``{"polls": polls simulated one by one, "bursts": bursts drawn in the
         largest bursts scenario, "by_scenario": {name: polls}}`` (counts).
     """
-    return _estimate_work_cached(tuple(design.motion), design.schedule, tuple(design.gear_train),
-                                 str(base_dir) if base_dir is not None else None)
-
-
-@lru_cache(maxsize=64)
-def _estimate_work_cached(motion: tuple, schedule, stages: tuple, base_dir: str | None) -> dict[str, float]:
-    # Cached: the dashboard re-sizes on every slider move and a trace would be read each time.
-    train = _train_cached(stages)[0]
-    periods = [schedule.poll_period_ms]
-    if schedule.kind == "adaptive":
-        periods.append(schedule.fast_poll_period_ms)
+    periods = [design.schedule.poll_period_ms]
+    if design.schedule.kind == "adaptive":
+        periods.append(design.schedule.fast_poll_period_ms)
     shortest_s = min(periods) / 1e3
-    hold_s = schedule.hold_time_s if schedule.kind == "adaptive" else 0.0
+    hold_s = design.schedule.hold_time_s if design.schedule.kind == "adaptive" else 0.0
+    stages = tuple(design.gear_train)
+    base = str(base_dir) if base_dir is not None else None
     by_scenario: dict[str, float] = {}
     most_bursts = 0.0
-    for sc in motion:
-        if sc.kind == "bursts":
-            count, mean_s = _burst_count(sc, train)
-            most_bursts = max(most_bursts, count)
-            moving_s = min(count * mean_s, sc.duration_s)
-            episodes = count
-        else:
-            profile, duration, _ = build_motion(sc, train, Path(base_dir) if base_dir is not None else None)
-            starts, ends = profile.motion_intervals()
-            moving_s = float(np.sum(np.minimum(ends, duration) - np.maximum(starts, 0.0))) if np.size(starts) else 0.0
-            episodes = float(np.size(starts))
+    for sc in design.motion:
+        moving_s, episodes, bursts = _scenario_motion(sc, stages, base)
+        most_bursts = max(most_bursts, bursts)
         by_scenario[sc.name] = moving_s / shortest_s + episodes * hold_s / shortest_s + episodes
     return {"polls": float(sum(by_scenario.values())), "bursts": most_bursts, "by_scenario": by_scenario}
+
+
+@lru_cache(maxsize=256)
+def _scenario_motion(sc: MotionScenario, stages: tuple, base_dir: str | None) -> tuple[float, float, float]:
+    """(time in motion s, motion episodes, bursts drawn) of one scenario; no schedule involved.
+
+    Cached: the dashboard and sweeps re-size on every change and a trace would be read each time.
+    """
+    train = _train_cached(stages)[0]
+    if sc.kind == "bursts":
+        count, mean_s = _burst_count(sc, train)
+        return min(count * mean_s, sc.duration_s), count, count
+    profile, duration, _ = build_motion(sc, train, Path(base_dir) if base_dir is not None else None)
+    starts, ends = profile.motion_intervals()
+    if not np.size(starts):
+        return 0.0, 0.0, 0.0
+    moving_s = float(np.sum(np.clip(np.minimum(ends, duration) - np.maximum(starts, 0.0), 0.0, None)))
+    return moving_s, float(np.size(starts)), 0.0
 
 
 def _burst_count(sc: MotionScenario, train) -> tuple[float, float]:
