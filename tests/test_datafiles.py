@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import codecs
 import os
-import sys
 
 import pytest
 
@@ -77,6 +76,10 @@ def test_a_link_leading_out_of_the_folder_is_refused(tmp_path):
         load_design(_design(folder, "t.csv"))
 
 
+NEEDS_FIFO = pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="POSIX pipes")
+
+
+@NEEDS_FIFO
 def test_folders_pipes_and_link_loops_get_their_own_messages(tmp_path):
     (tmp_path / "adir").mkdir()
     with pytest.raises(DesignFileError, match="is a folder"):
@@ -90,6 +93,7 @@ def test_folders_pipes_and_link_loops_get_their_own_messages(tmp_path):
         load_design(_design(tmp_path, "a.csv"))
 
 
+@NEEDS_FIFO
 def test_a_pipe_is_refused_by_the_readers_without_blocking(tmp_path):
     os.mkfifo(tmp_path / "pipe.csv")
     with pytest.raises(DesignFileError, match="not a regular file"):
@@ -166,7 +170,7 @@ def test_reading_names_the_file(tmp_path):
     assert name == str(tmp_path / "t.csv") and text == TRACE
 
 
-@pytest.mark.skipif(sys.platform.startswith("win"), reason="POSIX pipes")
+@NEEDS_FIFO
 def test_a_design_file_that_is_a_pipe_is_refused(tmp_path):
     os.mkfifo(tmp_path / "d.toml")
     with pytest.raises(DesignFileError, match="not a regular file"):
