@@ -50,6 +50,7 @@ def _edit(old: str, new: str) -> str:
     ('temperature = "5 degC"', 'temperature = "25 delta_degC"', "write the temperature itself"),
     ('bursts_per_day = 0.2', 'bursts_per_day = 1e6', "motion[1].duration must be short enough to simulate"),
     ('trace = "traces/gate-handwheel.csv"', 'trace = "/proc/self/environ"', "outside the design file's folder"),
+    ('kind = "external"', 'kind = []', "gear_train[0].kind: [] is not a stage kind"),
 ])
 def test_a_wrong_file_exits_2_naming_the_file_and_key(folder, capsys, old, new, words):
     status, _, err = _size(folder, _edit(old, new), capsys)
@@ -106,3 +107,17 @@ def test_batch_export_refuses_two_files_that_would_write_the_same_summary(tmp_pa
     err = capsys.readouterr().err
     assert status == EXIT_ERROR and "would both write" in err
     assert not out_dir.exists() or not any(out_dir.iterdir())
+
+
+def test_too_many_consumers_are_refused_by_name(folder, capsys):
+    consumer = '[[power.consumers]]\nname = "c{}"\nasleep = "1 uA"\nwaking = "1 mA"\npolling = "1 mA"\n' \
+               'tracking = "1 mA"\n'
+    text = GATE + "".join(consumer.format(i) for i in range(1001))
+    status, _, err = _size(folder, text, capsys)
+    assert status == EXIT_ERROR
+    assert "power.consumers: has 1004 entries; at most 1000 are read" in err
+
+
+def test_a_huge_design_file_is_refused_before_parsing(folder, capsys):
+    status, _, err = _size(folder, GATE + "# padding\n" * 120_000, capsys)
+    assert status == EXIT_ERROR and "at most 1048576" in err

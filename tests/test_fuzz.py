@@ -125,6 +125,18 @@ def test_extreme_numbers_give_a_verdict_or_a_named_error(demo_copy, capsys, key,
     _size_checked(path, capsys)
 
 
+@FUZZ
+@given(st.one_of(st.text(max_size=300), st.lists(st.sampled_from(
+    ["[sensor]", "[[motion]]", "[[gear_train]]", 'kind = "worm"', "format_version = 1", 'name = "x"', "a.b.c = 1",
+     "[power]", "consumers = []", "x = [[[1]]]", "= 3", '"\\u0000" = 1', "[[power.consumers]]", "[battery]"]),
+    max_size=12).map("\n".join)))
+def test_any_text_reads_as_a_design_or_a_named_error(text):
+    try:
+        loads_design(text, source="fuzz.toml")
+    except DesignFileError as exc:
+        assert str(exc).startswith("fuzz.toml")
+
+
 # --- traces and sweeps ------------------------------------------------------------------------------
 
 _CELL = st.one_of(st.floats(allow_nan=True).map(repr), st.integers(-10**20, 10**20).map(str),

@@ -266,7 +266,7 @@ class _Reader:
         if "kind" not in table:
             raise self.error(f"{path}.kind", f"missing; a stage needs kind = one of {', '.join(kinds)}")
         kind = table["kind"]
-        if kind not in d.STAGE_KINDS:
+        if not isinstance(kind, str) or kind not in d.STAGE_KINDS:
             raise self.error(f"{path}.kind", f"{_short(kind)} is not a stage kind; expected one of "
                                              f"{', '.join(kinds)}{self.suggest(kind, kinds)}")
         rest = {k: v for k, v in table.items() if k != "kind"}
