@@ -1151,6 +1151,14 @@ class _BudgetStage(tuple):
     replaced_checks = property(lambda self: ("output_accuracy",))
 
 
+def _floor_digits(value: float, digits: int = 3) -> str:
+    """``value`` rounded down to ``digits`` significant figures, as text (advice never rounds past a limit)."""
+    if value <= 0:
+        return "0"
+    step = 10.0 ** (math.floor(math.log10(value)) - digits + 1)
+    return f"{math.floor(value / step) * step:.{digits}g}"
+
+
 def _service_temperatures_degC(design: ActuatorDesign) -> np.ndarray:
     """Budget temperatures: the service range in up to 9 steps plus the calibration temperature inside it."""
     low, high = design.requirements.temperature_range_degC()
@@ -1223,7 +1231,7 @@ def _airgap_advice(design, temps, fine_error_deg) -> str:
     if gap is None:
         return ("no airgap makes every field check pass: use a stronger grade, a larger magnet or latches with "
                 "lower operate and release points")
-    return (f"reduce the magnet airgap to at most {gap:.3g} mm (now {design.magnet.airgap_mm:.3g} mm), or use a "
+    return (f"reduce the magnet airgap to at most {gap:g} mm (now {design.magnet.airgap_mm:g} mm), or use a "
             "stronger grade or a larger magnet")
 
 
@@ -1389,7 +1397,7 @@ def _accuracy_stage(design: ActuatorDesign, train, summary, stroke, curves: bool
                           "it the sum is too large: cut several parts, or relax the requirement")
             else:
                 advice = (f"the largest part is {top.label} ({now:.3g} {unit} at {temps[i]:g} degC); the "
-                          f"{names[acc.method]} sum passes with it at most {now * factor:.3g} {unit}")
+                          f"{names[acc.method]} sum passes with it at most {_floor_digits(now * factor)} {unit}")
         checks.append(_check("output_accuracy", f"Output accuracy over {low:g}..{high:g} degC "
                              f"({names[acc.method]} sum) is within the allowed error", chosen, target, unit, "<=",
                              advice=advice))
@@ -1424,7 +1432,7 @@ def _accuracy_stage(design: ActuatorDesign, train, summary, stroke, curves: bool
                 "count keeping", note="1/2 C (V1^2 - V2^2) >= P (t_detect + t_save)")
             checks.append(_check("holdup_energy", "Hold-up capacitor carries the brown-out detection and one save",
                                  hu.available_uJ, hu.needed_uJ, "uJ", ">=",
-                                 advice=f"a hold-up capacitance of at least {math.ceil(c_need * 100) / 100:.4g} uF"))
+                                 advice=f"a hold-up capacitance of at least {math.ceil(c_need * 100) / 100:g} uF"))
         if state is not None and "resync" in state:
             rs = state["resync"]
             rs_advice = _airgap_advice(design, temps, fine_err)
@@ -1433,7 +1441,7 @@ def _accuracy_stage(design: ActuatorDesign, train, summary, stroke, curves: bool
             lat = design.latches
             rs = countkeeping.resync(lat.hysteresis_deg, lat.switch_point_tolerance_deg, fine_err)
             room = 2.0 * (45.0 - lat.switch_point_tolerance_deg - fine_err)
-            rs_advice = (f"latches with a hysteresis of at most {math.floor(room * 100) / 100:.4g} deg"
+            rs_advice = (f"latches with a hysteresis of at most {math.floor(room * 100) / 100:g} deg"
                          if room > 0 else "tighten the latch switch-point tolerance and the sensor error")
             basis = "from [latches]"
         add("resync_guard_deg", "Power-up guard band around each latch edge", rs.guard_deg, "deg", "count keeping",
