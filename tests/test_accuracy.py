@@ -190,3 +190,15 @@ def test_a_reversed_temperature_range_is_refused():
     with pytest.raises(DesignFileError, match="service_temperature_low"):
         loads_design(_MINIMAL + '[requirements]\nservice_temperature_low = "60 degC"\n'
                                 'service_temperature_high = "0 degC"\n')
+
+
+def test_the_exported_summaries_show_the_three_sums_side_by_side():
+    from turnkit.export import to_html, to_markdown
+
+    result = size(_gate(), base_dir=DEMO)
+    md = to_markdown(result)
+    assert "## Accuracy budget over temperature" in md
+    assert "| Temperature | worst case | RSS | Monte Carlo |" in md
+    assert md.count(" degC |") >= 9
+    html = to_html(result)
+    assert "<h2>Accuracy budget over temperature</h2>" in html and "<th>Monte Carlo</th>" in html
