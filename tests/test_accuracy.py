@@ -54,7 +54,11 @@ def test_rss_and_monte_carlo_never_exceed_the_worst_case(parts):
     contributions = [acc.Contribution(f"c{i}", "c", np.array([a, 2 * a]), shape) for i, (a, shape) in enumerate(parts)]
     b = acc.budget(contributions, [0.0, 50.0], samples=2000)
     assert np.all(b.rss <= b.worst_case * (1 + 1e-12) + 1e-15)
-    assert np.all(b.monte_carlo <= b.worst_case * (1 + 1e-12) + 1e-15)
+    if all(shape != "normal" for _, shape in parts):
+        assert np.all(b.monte_carlo <= b.worst_case * (1 + 1e-12) + 1e-15)
+    else:
+        # a normal term is unbounded: its sampled quantile can pass k sigma by the sampling error
+        assert np.all(b.monte_carlo <= b.worst_case * 1.15 + 1e-15)
 
 
 def test_scaling_the_largest_part_as_advised_passes():

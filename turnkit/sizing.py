@@ -945,7 +945,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
                 overflow_count=result.overflow_count, max_output_error=max_err, output_unit=unit, note=note))
 
     # -- accuracy budget over temperature, magnet fields, count keeping (its own stage) --
-    budget_stage = _accuracy_stage(design, train, summary, stroke, curves)
+    budget_stage = _accuracy_stage(design, curves)
     values.extend(budget_stage.values)
     checks = [c for c in checks if c.key not in budget_stage.replaced_checks] + list(budget_stage.checks)
     warns.extend(budget_stage.warnings)
@@ -1235,12 +1235,28 @@ def _airgap_advice(design, temps, fine_error_deg) -> str:
             "stronger grade or a larger magnet")
 
 
-def _accuracy_stage(design: ActuatorDesign, train, summary, stroke, curves: bool = True) -> _BudgetStage:
+def _accuracy_stage(design: ActuatorDesign, curves: bool = True) -> _BudgetStage:
     """The output accuracy budget over the service temperatures, the magnet's field checks and the
-    count-keeping checks (each with advice computed from the same function as its check)."""
+    count-keeping checks (each with advice computed from the same function as its check).
+
+    Cached on the sections it reads: a poll-period or battery change on the dashboard reuses it.
+    """
+    from .design import CounterDesign, PowerDesign, ScheduleDesign
+
+    key = replace(design, name="-", description="", counter=CounterDesign(), schedule=ScheduleDesign(),
+                  power=PowerDesign(), battery=None, motion=())
+    return _accuracy_stage_cached(key, bool(curves))
+
+
+@lru_cache(maxsize=64)
+def _accuracy_stage_cached(design: ActuatorDesign, curves: bool) -> _BudgetStage:
     from . import accuracy as acc_mod, countkeeping, magnet as mag_mod
 
+    stages = tuple(design.gear_train)
+    train = _train_cached(stages)[0]
+    summary = _sensor_summary(design.sensor, stages, bool(design.sensor.calibrated))
     unit = train.output_unit
+    stroke = design.requirements.stroke_mm if unit == "mm" else design.requirements.stroke_deg
     acc = design.accuracy
     temps = _service_temperatures_degC(design)
     low, high = float(temps[0]), float(temps[-1])
@@ -1280,7 +1296,7 @@ def _accuracy_stage(design: ActuatorDesign, train, summary, stroke, curves: bool
         checks.append(_check("magnet_field_at_sensor", "Magnet field at the AMR sensor reaches its minimum field "
                              f"over {low:g}..{high:g} degC", float(state["b_sensor"][weakest]),
                              design.sensor.minimum_field_mT, "mT", ">=",
-                             advice=_airgap_advice(design, temps, fine_err)))
+                             advice="" if state["sensor_ok"] else _airgap_advice(design, temps, fine_err)))
         rated = sorted((g for g in mag_mod.GRADES.values() if g.max_temperature_degC >= high),
                        key=lambda g: -g.remanence_mT)
         t_advice = (f"choose a grade rated to at least {high:g} degC, e.g. grade = '{rated[0].key}' "
@@ -1291,7 +1307,7 @@ def _accuracy_stage(design: ActuatorDesign, train, summary, stroke, curves: bool
         sw = state["switching"]
         if sw is not None:
             io, ir = sw.worst_operate_index, sw.worst_release_index
-            advice = _airgap_advice(design, temps, fine_err)
+            advice = "" if sw.operates and sw.releases else _airgap_advice(design, temps, fine_err)
             checks.append(_check("latch_operates", f"Latch field reaches the operate point (worst at "
                                  f"{temps[io]:g} degC)", float(sw.peak_field_mT[io]), float(sw.operate_needed_mT[io]),
                                  "mT", ">=", advice=advice))
@@ -1387,7 +1403,7 @@ def _accuracy_stage(design: ActuatorDesign, train, summary, stroke, curves: bool
     target = design.requirements.output_accuracy_mm if unit == "mm" else design.requirements.output_accuracy_deg
     if target is not None:
         advice = ""
-        top = acc_mod.largest_contribution(result, acc.method)
+        top = acc_mod.largest_contribution(result, acc.method) if chosen > target else None
         if top is not None:
             i = int(np.argmax(result.total(acc.method)))
             now = float(top.extreme(result.coverage_factor)[i])
@@ -1435,7 +1451,7 @@ def _accuracy_stage(design: ActuatorDesign, train, summary, stroke, curves: bool
                                  advice=f"a hold-up capacitance of at least {math.ceil(c_need * 100) / 100:g} uF"))
         if state is not None and "resync" in state:
             rs = state["resync"]
-            rs_advice = _airgap_advice(design, temps, fine_err)
+            rs_advice = "" if rs.ok else _airgap_advice(design, temps, fine_err)
             basis = "from the magnet's field"
         else:
             lat = design.latches
@@ -1473,4 +1489,4 @@ def _accuracy_stage(design: ActuatorDesign, train, summary, stroke, curves: bool
             "accuracy_waterfall", f"Accuracy budget at {temps[i]:g} degC, largest part first", "contribution", "",
             "output error", unit, tuple(wf),
             note="; ".join(f"{n + 1}: {labels[k]} {sizes[k]:.3g} {unit}" for n, k in enumerate(order))))
-    return _BudgetStage((values, checks, curve_list, warns, assumptions))
+    return _BudgetStage((tuple(values), tuple(checks), tuple(curve_list), tuple(warns), tuple(assumptions)))
