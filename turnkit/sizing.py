@@ -11,7 +11,8 @@ Result keys (``result.value(key)``) carry their unit in the name; the curve
 keys are ``"life_vs_poll_period"`` (or ``"current_vs_poll_period"`` on a host
 supply), ``"backdrive_event"``, ``"backdrive_error"``,
 ``"resolution_vs_reduction"``, ``"backdrive_speed_vs_reduction"``,
-``"current_profile"``, ``"sensor_error"`` and, when the design names a measured
+``"current_profile"``, ``"sensor_error"``, ``"accuracy_vs_temperature"``,
+``"accuracy_waterfall"`` and, when the design names a measured
 sweep (``[sensor] sweep``), ``"calibration_sweep"``.
 
 Examples
