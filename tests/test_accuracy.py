@@ -89,6 +89,12 @@ def test_each_demo_shows_its_budget_over_temperature_with_three_sums(name):
     assert result.curve("accuracy_waterfall").series[0].y[-1] == pytest.approx(worst_there)
 
 
+def _advised(check, before: str, after: str) -> float:
+    """The number a failing check's advice gives between two pieces of its text."""
+    assert not check.passed and before in check.advice, check
+    return float(check.advice.split(before)[1].split(after)[0])
+
+
 def _gate():
     return load_design(DEMO / "irrigation-gate-valve.toml")
 
@@ -98,7 +104,7 @@ def test_a_too_large_airgap_fails_the_field_check_and_the_advised_airgap_passes(
     far = replace(design, magnet=replace(design.magnet, airgap_mm=9.0))
     check = size(far, base_dir=DEMO, curves=False).check("magnet_field_at_sensor")
     assert not check.passed and "airgap to at most" in check.advice
-    gap = float(check.advice.split("at most ")[1].split(" mm")[0])
+    gap = _advised(check, "at most ", " mm")
     fixed = size(replace(far, magnet=replace(far.magnet, airgap_mm=gap)), base_dir=DEMO, curves=False)
     for key in ("magnet_field_at_sensor", "latch_operates", "latch_releases", "power_up_resync"):
         assert fixed.check(key).passed
@@ -126,7 +132,7 @@ def test_a_hot_site_with_a_weak_magnet_loses_the_latch_and_the_advice_recovers_i
                    requirements=replace(design.requirements, service_temperature_high_degC=85.0))
     check = size(weak, base_dir=DEMO, curves=False).check("latch_operates")
     assert not check.passed and "85 degC" in check.label
-    gap = float(check.advice.split("at most ")[1].split(" mm")[0])
+    gap = _advised(check, "at most ", " mm")
     fixed = size(replace(weak, magnet=replace(weak.magnet, airgap_mm=gap)), base_dir=DEMO, curves=False)
     assert fixed.check("latch_operates").passed and fixed.check("latch_releases").passed
 
@@ -136,7 +142,7 @@ def test_the_accuracy_advice_applied_to_the_design_passes():
     rough = replace(design, accuracy=replace(design.accuracy, transmission_error_mm=0.5))
     check = size(rough, base_dir=DEMO, curves=False).check("output_accuracy")
     assert not check.passed and "transmission error" in check.advice
-    allowed = float(check.advice.split("at most ")[1].split(" mm")[0])
+    allowed = _advised(check, "at most ", " mm")
     fixed = replace(rough, accuracy=replace(rough.accuracy, transmission_error_mm=allowed * (1 - 1e-3)))
     assert size(fixed, base_dir=DEMO, curves=False).check("output_accuracy").passed
 

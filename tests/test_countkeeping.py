@@ -68,6 +68,12 @@ def test_brownout_strategy_without_a_capacitor_is_refused_naming_the_key():
         CountMemoryDesign(write_strategy="on_change")
 
 
+def _advised(check, before: str, after: str) -> float:
+    """The number a failing check's advice gives between two pieces of its text."""
+    assert not check.passed and before in check.advice, check
+    return float(check.advice.split(before)[1].split(after)[0])
+
+
 def _gate():
     return load_design(DEMO / "irrigation-gate-valve.toml")
 
@@ -77,7 +83,7 @@ def test_a_too_small_holdup_capacitor_fails_and_the_advice_passes():
     small = replace(design, count_memory=replace(design.count_memory, holdup_capacitance_uF=4.7))
     check = size(small, base_dir=DEMO, curves=False).check("holdup_energy")
     assert not check.passed
-    c = float(check.advice.split("at least ")[1].split(" uF")[0])
+    c = _advised(check, "at least ", " uF")
     fixed = replace(small, count_memory=replace(small.count_memory, holdup_capacitance_uF=c))
     assert size(fixed, base_dir=DEMO, curves=False).check("holdup_energy").passed
 
@@ -87,7 +93,7 @@ def test_writing_on_every_step_wears_the_memory_out_and_the_advised_slots_pass()
     busy = replace(design, count_memory=CountMemoryDesign(write_strategy="on_change", travel_per_day_mm=500.0))
     check = size(busy, base_dir=DEMO, curves=False).check("memory_endurance")
     assert not check.passed
-    slots = int(check.advice.split("wear_leveling_slots = ")[1].split(")")[0])
+    slots = int(_advised(check, "wear_leveling_slots = ", ")"))
     fixed = replace(busy, count_memory=replace(busy.count_memory, wear_leveling_slots=slots))
     assert size(fixed, base_dir=DEMO, curves=False).check("memory_endurance").passed
 
@@ -97,7 +103,7 @@ def test_a_wide_hysteresis_makes_resync_undecidable_and_the_advice_passes():
     wide = replace(design, latches=replace(design.latches, hysteresis_deg=80.0, switch_point_tolerance_deg=10.0))
     check = size(wide, base_dir=DEMO, curves=False, simulate=False).check("power_up_resync")
     assert not check.passed
-    h = float(check.advice.split("at most ")[1].split(" deg")[0])
+    h = _advised(check, "at most ", " deg")
     fixed = replace(wide, latches=replace(wide.latches, hysteresis_deg=h))
     assert size(fixed, base_dir=DEMO, curves=False, simulate=False).check("power_up_resync").passed
 

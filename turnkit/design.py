@@ -336,6 +336,16 @@ def _fail(section: _Section, attr: str, value: Any, allowed: str, unit: str = ""
     raise DesignValueError(f"{type(section).__name__}.{attr}", value, allowed, unit=unit, hint=hint)
 
 
+def _both_or_neither(section: _Section, first: tuple[str, str], second: tuple[str, str]) -> None:
+    """Refuse a pair of (attribute, file key) fields of which only one is given."""
+    given = [getattr(section, attr) is not None for attr, _ in (first, second)]
+    if given[0] != given[1]:
+        attr, _ = second if given[0] else first
+        other = (first if given[0] else second)[1]
+        _fail(section, attr, None, f"given together with {other}", hint=f"give both {first[1]} and {second[1]}, "
+                                                                         "or neither")
+
+
 # --- gear train -------------------------------------------------------------------
 
 _BACKLASH_DEG = FieldSpec(
@@ -649,10 +659,7 @@ class LatchDesign(_Section):
     threshold_drift_pct_per_K: float = 0.0
 
     def _check_together(self) -> None:
-        if (self.operate_field_mT is None) != (self.release_field_mT is None):
-            missing = "release_field_mT" if self.release_field_mT is None else "operate_field_mT"
-            _fail(self, missing, None, "given together with the other threshold",
-                  hint="give both operate_field and release_field, or neither")
+        _both_or_neither(self, ("operate_field_mT", "operate_field"), ("release_field_mT", "release_field"))
 
 
 @dataclass(frozen=True, slots=True)
@@ -1068,11 +1075,8 @@ class AccuracyDesign(_Section):
     seed: int = 1
 
     def _check_together(self) -> None:
-        if (self.screw_expansion_ppm_per_K is None) != (self.housing_expansion_ppm_per_K is None):
-            missing = "housing_expansion_ppm_per_K" if self.housing_expansion_ppm_per_K is None \
-                else "screw_expansion_ppm_per_K"
-            _fail(self, missing, None, "given together with the other expansion coefficient",
-                  hint="give both screw_expansion and housing_expansion, or neither")
+        _both_or_neither(self, ("screw_expansion_ppm_per_K", "screw_expansion"),
+                         ("housing_expansion_ppm_per_K", "housing_expansion"))
 
 
 @dataclass(frozen=True, slots=True)
