@@ -555,7 +555,9 @@ def test_demo_airgap_grade_and_temperature_controls_drive_the_accuracy_and_field
         assert key in demo.controls, list(demo.controls)
     assert type(demo.controls["magnet.grade"]).__name__ == "Dropdown"
     budget = demo.figures["accuracy_vs_temperature"]
-    assert "accuracy_waterfall" in demo.figures
+    waterfall = demo.figures["accuracy_waterfall"].figure.xaxis[0]
+    first_part = demo.result.curve("accuracy_waterfall").note.split("; ")[0]
+    assert first_part.startswith("1: " + waterfall.major_label_overrides[1] + " ")
     demo.controls["magnet.airgap_mm"].value = demo.controls["magnet.airgap_mm"].max
     assert demo.error == ""
     row = demo.requirements.value.split("data-key='magnet_field_at_sensor'")[1].split("</tr>")[0]
