@@ -1466,6 +1466,9 @@ def _accuracy_stage_cached(design: ActuatorDesign, curves: bool) -> _BudgetStage
                  f"{100 * rs.untrusted_fraction:.3g} % of a turn is re-synced from the stored count")
         checks.append(_check("power_up_resync", "Power-up re-sync inside the latch hysteresis band is decidable",
                              rs.guard_deg, 45.0, "deg", "<=", advice=rs_advice))
+        assumptions.append(("A count kept through a supply event assumes nothing moved while the electronics had no "
+                            "power at all; re-home after a power loss where a wrong position can hurt someone",
+                            "(common practice)"))
 
     # -- plots ------------------------------------------------------------------------
     if curves:
