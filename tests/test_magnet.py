@@ -161,3 +161,20 @@ def test_bad_magnet_dimensions_name_the_field():
         m.field_mT(1000.0, 6.0, 2.5, 0.0, 0.0, 0.0)
     with pytest.raises(DesignValueError, match="magnet.diameter"):
         m.axial_field_on_axis_mT(1000.0, -1.0, 2.5, 1.0)
+
+
+def test_sizing_offers_the_field_derived_switch_spread_it_reports():
+    from dataclasses import replace
+    from pathlib import Path
+
+    from turnkit.designfile import load_design
+    from turnkit.sizing import latch_switch_spread_from_field, size
+
+    demo = Path(__file__).resolve().parents[1] / "demo"
+    design = load_design(demo / "irrigation-gate-valve.toml")
+    spread, hysteresis = latch_switch_spread_from_field(design)
+    result = size(design, base_dir=demo, curves=False)
+    assert spread == pytest.approx(result.value("latch_switch_spread_deg").value)
+    assert hysteresis == pytest.approx(result.value("latch_field_hysteresis_deg").value)
+    assert 0 < spread < design.latches.switch_point_tolerance_deg
+    assert latch_switch_spread_from_field(replace(design, magnet=None)) is None

@@ -1494,3 +1494,23 @@ def _accuracy_stage_cached(design: ActuatorDesign, curves: bool) -> _BudgetStage
             "output error", unit, tuple(wf),
             note="; ".join(f"{n + 1}: {labels[k]} {sizes[k]:.3g} {unit}" for n, k in enumerate(order))))
     return _BudgetStage((tuple(values), tuple(checks), tuple(curve_list), tuple(warns), tuple(assumptions)))
+
+
+def latch_switch_spread_from_field(design: ActuatorDesign) -> tuple[float, float] | None:
+    """Field-derived latch switch-point tolerance and hysteresis of a design (deg, deg), or None.
+
+    The switch-angle spread (either way) and nominal hysteresis that the magnet's field
+    gives the latches over the service temperatures (:func:`turnkit.magnet.latch_switch_spread_deg`),
+    for a counting bound that narrows the quadrant by them. None when the design has no
+    ``[magnet]`` or no latch operate/release points.
+    """
+    if design.magnet is None or design.latches.operate_field_mT is None:
+        return None
+    from .magnet import latch_switch_spread_deg
+
+    temps = _service_temperatures_degC(design)
+    b_latch = _field_state(design, temps, design.magnet.airgap_mm, 0.0)["b_latch"]
+    lat = design.latches
+    return latch_switch_spread_deg(b_latch, temps, operate_field_mT=lat.operate_field_mT,
+                                   release_field_mT=lat.release_field_mT, threshold_spread_mT=lat.threshold_spread_mT,
+                                   threshold_drift_pct_per_K=lat.threshold_drift_pct_per_K)
