@@ -26,9 +26,12 @@ SECTION_CLASSES = (
     d.MotionScenario,
     d.Requirements,
     d.ActuatorDesign,
+    d.MagnetDesign,
+    d.AccuracyDesign,
+    d.CountMemoryDesign,
 )
 NESTED = {"gear_train", "sensor", "latches", "counter", "schedule", "power", "battery", "motion",
-          "requirements", "consumers", "host_supply"}
+          "requirements", "consumers", "host_supply", "magnet", "accuracy", "count_memory"}
 
 
 # --- the field tables -------------------------------------------------------------

@@ -818,7 +818,7 @@ def test_documented_example_loads_round_trips_and_fits_the_schema():
 def test_documented_reference_lists_every_key():
     classes = (*d.STAGE_KINDS.values(), d.SensorDesign, d.LatchDesign, d.CounterDesign, d.ScheduleDesign,
                d.PowerDesign, d.PowerConsumer, d.HostSupply, d.BatteryDesign, d.MotionScenario, d.Requirements,
-               d.ActuatorDesign)
+               d.ActuatorDesign, d.MagnetDesign, d.AccuracyDesign, d.CountMemoryDesign)
     reference = DOC.split("## Field reference", 1)[1]
     missing = [(cls.__name__, spec.key) for cls in classes for spec in cls.FIELDS
                if f"| `{spec.key}` |" not in reference]

@@ -62,6 +62,9 @@ __all__ = [
     "MotionScenario",
     "MOTION_FIELDS_BY_KIND",
     "Requirements",
+    "MagnetDesign",
+    "AccuracyDesign",
+    "CountMemoryDesign",
     "ActuatorDesign",
 ]
 
@@ -108,6 +111,12 @@ UNIT_DIMENSIONS: dict[str, tuple[str, str]] = {
     "mAh": ("charge", "mAh"),
     "Hz": ("frequency", "Hz"),
     "degC": ("temperature", "degC"),
+    "mT": ("magnetic flux density", "mT"),
+    "%/K": ("temperature coefficient", "pct_per_K"),
+    "ppm/K": ("expansion coefficient", "ppm_per_K"),
+    "uV/K": ("voltage drift", "uV_per_K"),
+    "uF": ("capacitance", "uF"),
+    "mW": ("power", "mW"),
 }
 
 _IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
@@ -330,6 +339,16 @@ class _Section:
 
 def _fail(section: _Section, attr: str, value: Any, allowed: str, unit: str = "", hint: str = ""):
     raise DesignValueError(f"{type(section).__name__}.{attr}", value, allowed, unit=unit, hint=hint)
+
+
+def _both_or_neither(section: _Section, first: tuple[str, str], second: tuple[str, str]) -> None:
+    """Refuse a pair of (attribute, file key) fields of which only one is given."""
+    given = [getattr(section, attr) is not None for attr, _ in (first, second)]
+    if given[0] != given[1]:
+        attr, _ = second if given[0] else first
+        other = (first if given[0] else second)[1]
+        _fail(section, attr, None, f"given together with {other}", hint=f"give both {first[1]} and {second[1]}, "
+                                                                         "or neither")
 
 
 # --- gear train -------------------------------------------------------------------
@@ -585,6 +604,17 @@ class SensorDesign(_Section):
                   default=False),
         FieldSpec("sweep", "path", "CSV file of a measured calibration sweep (columns x and y in mV, "
                   "optionally angle in deg), relative to the design file"),
+        FieldSpec("offset_drift", "quantity", "drift of each bridge's offset with temperature, either way, "
+                  "left over after a calibration at one temperature", units=("uV/K",), low=0.0, default=0.0),
+        FieldSpec("gain_mismatch_drift", "quantity", "drift of the gain mismatch between the bridges with "
+                  "temperature, either way", units=("%/K",), low=0.0, default=0.0),
+        FieldSpec("amplitude_drift", "quantity", "temperature coefficient of the bridge amplitude (both bridges)",
+                  units=("%/K",), low=-2.0, high=2.0, default=0.0),
+        FieldSpec("minimum_field", "quantity", "smallest magnet field for the sensor's rated accuracy "
+                  "(saturation field); 25 mT when omitted (common practice)", units=("mT",),
+                  low=0.0, low_open=True, default=25.0),
+        FieldSpec("anisotropy_field", "quantity", "anisotropy field of the AMR film, for the finite-field angle "
+                  "error B_k/(2B) (omitted: not counted)", units=("mT",), low=0.0, default=0.0),
     )
     amplitude_mV: float = 100.0
     offset_x_mV: float = 0.0
@@ -598,6 +628,11 @@ class SensorDesign(_Section):
     adc_full_scale_mV: float = 250.0
     calibrated: bool = False
     sweep: str | None = None
+    offset_drift_uV_per_K: float = 0.0
+    gain_mismatch_drift_pct_per_K: float = 0.0
+    amplitude_drift_pct_per_K: float = 0.0
+    minimum_field_mT: float = 25.0
+    anisotropy_field_mT: float = 0.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -611,10 +646,25 @@ class LatchDesign(_Section):
                   units=("deg",), low=0.0, high=90.0, high_open=True, default=2.0),
         FieldSpec("magnet_misalignment", "quantity", "angle between the magnet's poles and the latch positions",
                   units=("deg",), low=-45.0, high=45.0, default=0.0),
+        FieldSpec("operate_field", "quantity", "typical field at which a latch switches on (operate point; "
+                  "needs [magnet] to be checked)", units=("mT",), low=0.0, low_open=True),
+        FieldSpec("release_field", "quantity", "typical field at which a latch switches off (release point, "
+                  "negative for a latch)", units=("mT",), high=0.0, high_open=True),
+        FieldSpec("threshold_spread", "quantity", "part-to-part spread of the operate and release points, "
+                  "either way", units=("mT",), low=0.0, default=0.0),
+        FieldSpec("threshold_drift", "quantity", "temperature coefficient of the size of the operate and "
+                  "release points, referred to 20 degC", units=("%/K",), low=-2.0, high=2.0, default=0.0),
     )
     switch_point_tolerance_deg: float = 5.0
     hysteresis_deg: float = 2.0
     magnet_misalignment_deg: float = 0.0
+    operate_field_mT: float | None = None
+    release_field_mT: float | None = None
+    threshold_spread_mT: float = 0.0
+    threshold_drift_pct_per_K: float = 0.0
+
+    def _check_together(self) -> None:
+        _both_or_neither(self, ("operate_field_mT", "operate_field"), ("release_field_mT", "release_field"))
 
 
 @dataclass(frozen=True, slots=True)
@@ -907,6 +957,11 @@ class Requirements(_Section):
                   low=0.0, low_open=True),
         FieldSpec("service_temperature", "quantity", "temperature the requirements must hold at",
                   units=("degC",), low=-60.0, high=125.0),
+        FieldSpec("service_temperature_low", "quantity", "lowest temperature in service, for the accuracy "
+                  "budget and the magnet checks (omitted: service_temperature, else 20 degC)",
+                  units=("degC",), low=-60.0, high=125.0),
+        FieldSpec("service_temperature_high", "quantity", "highest temperature in service (omitted: "
+                  "service_temperature, else 20 degC)", units=("degC",), low=-60.0, high=125.0),
     )
     stroke_mm: float | None = None
     stroke_deg: float | None = None
@@ -919,6 +974,182 @@ class Requirements(_Section):
     battery_life_years: float | None = None
     quiescent_budget_uA: float | None = None
     service_temperature_degC: float | None = None
+    service_temperature_low_degC: float | None = None
+    service_temperature_high_degC: float | None = None
+
+    def _check_together(self) -> None:
+        low, high = self.temperature_range_degC()
+        if low > high:
+            _fail(self, "service_temperature_low_degC", low, f"<= service_temperature_high ({_short(high)} degC)",
+                  unit="degC")
+
+    def temperature_range_degC(self) -> tuple[float, float]:
+        """(lowest, highest) service temperature (degC), defaults applied."""
+        one = self.service_temperature_degC if self.service_temperature_degC is not None else 20.0
+        low = self.service_temperature_low_degC
+        high = self.service_temperature_high_degC
+        return (low if low is not None else min(one, high if high is not None else one),
+                high if high is not None else max(one, low if low is not None else one))
+
+
+# --- magnet, accuracy budget, count memory ----------------------------------------
+
+_GRADE_KEYS = ("ndfeb", "ndfeb_high_temperature", "ndfeb_bonded", "smco5", "sm2co17", "ferrite")
+
+
+@dataclass(frozen=True, slots=True)
+class MagnetDesign(_Section):
+    """The diametrically magnetised disc on the motor shaft and where the board sits.
+
+    The AMR sensor is on the shaft axis and the Hall latches at
+    ``latch_radius`` from it, all on one board ``airgap`` below the magnet.
+    """
+
+    FIELDS: ClassVar[tuple[FieldSpec, ...]] = (
+        FieldSpec("grade", "choice", "magnet material (remanence and its temperature coefficient from turnkit's "
+                  "table)", choices=_GRADE_KEYS, default="ndfeb"),
+        FieldSpec("diameter", "quantity", "magnet diameter", units=("mm",), low=0.0, low_open=True,
+                  default=REQUIRED),
+        FieldSpec("thickness", "quantity", "magnet thickness along the shaft", units=("mm",), low=0.0,
+                  low_open=True, default=REQUIRED),
+        FieldSpec("airgap", "quantity", "distance from the magnet's face to the sensor board", units=("mm",),
+                  low=0.0, low_open=True, default=REQUIRED),
+        FieldSpec("latch_radius", "quantity", "distance of the Hall latches from the shaft axis "
+                  "(omitted: under the magnet's edge)", units=("mm",), low=0.0, low_open=True),
+        FieldSpec("remanence", "quantity", "remanence at 20 degC (omitted: the grade's typical value)",
+                  units=("mT",), low=0.0, low_open=True),
+        FieldSpec("remanence_drift", "quantity", "reversible temperature coefficient of the remanence "
+                  "(omitted: the grade's)", units=("%/K",), low=-2.0, high=0.0),
+        FieldSpec("max_temperature", "quantity", "highest working temperature of the magnet "
+                  "(omitted: the grade's)", units=("degC",), low=-60.0, high=400.0),
+    )
+    diameter_mm: float
+    thickness_mm: float
+    airgap_mm: float
+    grade: str = "ndfeb"
+    latch_radius_mm: float | None = None
+    remanence_mT: float | None = None
+    remanence_drift_pct_per_K: float | None = None
+    max_temperature_degC: float | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class AccuracyDesign(_Section):
+    """How the output accuracy budget is summed and the errors the sensor model does not hold."""
+
+    FIELDS: ClassVar[tuple[FieldSpec, ...]] = (
+        FieldSpec("method", "choice", "sum checked against the accuracy requirement: worst_case (every error "
+                  "at its extreme), rss (root sum of squares) or monte_carlo", choices=("worst_case", "rss",
+                                                                                       "monte_carlo"),
+                  default="worst_case"),
+        FieldSpec("noise_coverage", "number", "coverage factor k: random errors count k standard deviations",
+                  low=0.0, high=10.0, low_open=True, default=3.0),
+        FieldSpec("approach", "choice", "either: the output reaches a position from both directions (backlash "
+                  "counts); one_direction: always from the same side (backlash taken up)",
+                  choices=("either", "one_direction"), default="either"),
+        FieldSpec("calibration_temperature", "quantity", "temperature of the one sensor calibration",
+                  units=("degC",), low=-60.0, high=125.0, default=20.0),
+        FieldSpec("eccentricity", "quantity", "distance between the sensor centre and the magnet axis not "
+                  "taken out by calibration (needs [magnet])", units=("mm",), low=0.0, default=0.0),
+        FieldSpec("tilt", "quantity", "tilt of the sensor against the magnet's face", units=("deg",), low=0.0,
+                  high=45.0, default=0.0),
+        FieldSpec("stray_field", "quantity", "largest uniform stray field at the sensor (needs [magnet])",
+                  units=("mT",), low=0.0, default=0.0),
+        FieldSpec("transmission_error", "quantity", "transmission error and runout of the last stages, peak, "
+                  "at the output", units=("mm", "deg"), low=0.0),
+        FieldSpec("lead_error", "quantity", "largest cumulative lead deviation of the screw over the stroke",
+                  units=("mm",), low=0.0),
+        FieldSpec("screw_expansion", "quantity", "thermal expansion coefficient of the screw or rack "
+                  "(with housing_expansion; needs a stroke)", units=("ppm/K",), low=0.0),
+        FieldSpec("housing_expansion", "quantity", "thermal expansion coefficient of the housing the stroke is "
+                  "measured against", units=("ppm/K",), low=0.0),
+        FieldSpec("monte_carlo_samples", "int", "Monte Carlo draws per temperature", low=100, high=1_000_000,
+                  default=20000),
+        FieldSpec("seed", "int", "seed of the Monte Carlo draws", low=0, default=1),
+    )
+    method: str = "worst_case"
+    noise_coverage: float = 3.0
+    approach: str = "either"
+    calibration_temperature_degC: float = 20.0
+    eccentricity_mm: float = 0.0
+    tilt_deg: float = 0.0
+    stray_field_mT: float = 0.0
+    transmission_error_mm: float | None = None
+    transmission_error_deg: float | None = None
+    lead_error_mm: float | None = None
+    screw_expansion_ppm_per_K: float | None = None
+    housing_expansion_ppm_per_K: float | None = None
+    monte_carlo_samples: int = 20000
+    seed: int = 1
+
+    def _check_together(self) -> None:
+        _both_or_neither(self, ("screw_expansion_ppm_per_K", "screw_expansion"),
+                         ("housing_expansion_ppm_per_K", "housing_expansion"))
+
+
+@dataclass(frozen=True, slots=True)
+class CountMemoryDesign(_Section):
+    """Where the count survives supply events: non-volatile writes, hold-up and re-sync."""
+
+    FIELDS: ClassVar[tuple[FieldSpec, ...]] = (
+        FieldSpec("write_strategy", "choice", "when the count is written: on_change (every quarter-turn step), "
+                  "periodic (at most once per write_period, if changed) or on_brownout (once per supply event, "
+                  "from the hold-up capacitor)", choices=("on_change", "periodic", "on_brownout"),
+                  default="on_change"),
+        FieldSpec("travel_per_day", "quantity", "output travel per day, all moves together", units=("mm", "deg"),
+                  low=0.0),
+        FieldSpec("write_period", "quantity", "time between writes (periodic)", units=("s",), low=0.0,
+                  low_open=True, default=60.0),
+        FieldSpec("supply_events_per_day", "number", "brown-outs and power losses per day", low=0.0, default=1.0),
+        FieldSpec("service_life", "quantity", "service life for the write count (omitted: the required battery "
+                  "life, else 10 years)", units=("years",), low=0.0, low_open=True),
+        FieldSpec("rated_write_cycles", "int", "write cycles the memory is rated for, per location", low=1,
+                  default=100000),
+        FieldSpec("wear_leveling_slots", "int", "locations the writes are spread over", low=1, default=1),
+        FieldSpec("holdup_capacitance", "quantity", "hold-up capacitance on the electronics' supply",
+                  units=("uF",), low=0.0),
+        FieldSpec("brownout_threshold", "quantity", "supply voltage at which the brown-out is detected",
+                  units=("V",), low=0.0, low_open=True),
+        FieldSpec("minimum_write_voltage", "quantity", "lowest supply voltage a write still completes at",
+                  units=("V",), low=0.0),
+        FieldSpec("save_power", "quantity", "power drawn while detecting the brown-out and saving",
+                  units=("mW",), low=0.0),
+        FieldSpec("save_time", "quantity", "time of one save", units=("ms",), low=0.0),
+        FieldSpec("detection_latency", "quantity", "time from the brown-out threshold to the start of the save",
+                  units=("us",), low=0.0, default=0.0),
+    )
+    write_strategy: str = "on_change"
+    travel_per_day_mm: float | None = None
+    travel_per_day_deg: float | None = None
+    write_period_s: float = 60.0
+    supply_events_per_day: float = 1.0
+    service_life_years: float | None = None
+    rated_write_cycles: int = 100000
+    wear_leveling_slots: int = 1
+    holdup_capacitance_uF: float | None = None
+    brownout_threshold_V: float | None = None
+    minimum_write_voltage_V: float | None = None
+    save_power_mW: float | None = None
+    save_time_ms: float | None = None
+    detection_latency_us: float = 0.0
+
+    _HOLD_UP = ("holdup_capacitance_uF", "brownout_threshold_V", "minimum_write_voltage_V", "save_power_mW",
+                "save_time_ms")
+
+    def _check_together(self) -> None:
+        if self.write_strategy in ("on_change", "periodic") and self.travel_per_day_mm is None \
+                and self.travel_per_day_deg is None:
+            _fail(self, "travel_per_day", None, f"given for write_strategy = '{self.write_strategy}'",
+                  hint="say how far the output moves in a day, e.g. travel_per_day = \"500 mm\"")
+        if self.write_strategy == "on_brownout":
+            for attr in self._HOLD_UP:
+                if getattr(self, attr) is None:
+                    _fail(self, attr, None, "given for write_strategy = 'on_brownout'",
+                          hint="a save on brown-out needs holdup_capacitance, brownout_threshold, "
+                               "minimum_write_voltage, save_power and save_time")
+            if self.brownout_threshold_V <= self.minimum_write_voltage_V:
+                _fail(self, "brownout_threshold_V", self.brownout_threshold_V,
+                      f"above minimum_write_voltage ({_short(self.minimum_write_voltage_V)} V)", unit="V")
 
 
 # --- the whole design ------------------------------------------------------------
@@ -944,6 +1175,12 @@ class ActuatorDesign(_Section):
     requirements : Requirements
     format_version : int
         The design-file format version.
+    magnet : MagnetDesign or None
+        The shaft magnet and airgap; None when not described (no field checks).
+    accuracy : AccuracyDesign
+        How the output accuracy budget is summed, and errors outside the sensor model.
+    count_memory : CountMemoryDesign or None
+        Non-volatile writes, hold-up and re-sync; None when not described.
     """
 
     FIELDS: ClassVar[tuple[FieldSpec, ...]] = (
@@ -964,6 +1201,9 @@ class ActuatorDesign(_Section):
     motion: tuple[MotionScenario, ...] = ()
     requirements: Requirements = field(default_factory=Requirements)
     format_version: int = FORMAT_VERSION
+    magnet: MagnetDesign | None = None
+    accuracy: AccuracyDesign = field(default_factory=AccuracyDesign)
+    count_memory: CountMemoryDesign | None = None
 
     def _check_together(self) -> None:
         if not self.name.strip():
@@ -982,6 +1222,11 @@ class ActuatorDesign(_Section):
                 _fail(self, attr, getattr(self, attr), f"a {cls.__name__}")
         if self.battery is not None and not isinstance(self.battery, BatteryDesign):
             _fail(self, "battery", self.battery, "a BatteryDesign or None")
+        for attr, cls in (("magnet", MagnetDesign), ("count_memory", CountMemoryDesign)):
+            if getattr(self, attr) is not None and not isinstance(getattr(self, attr), cls):
+                _fail(self, attr, getattr(self, attr), f"a {cls.__name__} or None")
+        if not isinstance(self.accuracy, AccuracyDesign):
+            _fail(self, "accuracy", self.accuracy, f"a {AccuracyDesign.__name__}")
         if not isinstance(self.motion, tuple) or not all(isinstance(m, MotionScenario) for m in self.motion):
             _fail(self, "motion", self.motion, "a tuple of MotionScenario")
         names = [m.name for m in self.motion]

@@ -66,10 +66,16 @@ _SECTIONS: dict[str, type] = {
     "counter": d.CounterDesign,
     "schedule": d.ScheduleDesign,
     "requirements": d.Requirements,
+    "accuracy": d.AccuracyDesign,
+}
+# Optional sections: absent in the file means None in the design.
+_OPTIONAL_SECTIONS: dict[str, type] = {
+    "magnet": d.MagnetDesign,
+    "count_memory": d.CountMemoryDesign,
 }
 _TOP_KEYS = (
     "format_version", "name", "description", "gear_train", "sensor", "latches", "counter", "schedule",
-    "power", "battery", "motion", "requirements",
+    "power", "battery", "motion", "requirements", "magnet", "accuracy", "count_memory",
 )
 _POWER_KEYS = ("cutoff_voltage", "consumers", "host_supply")
 
@@ -88,6 +94,7 @@ _EXAMPLES = {
     "mm": "2 mm", "deg": "1.5 deg", "rpm": "300 rpm", "mm/s": "5 mm/s", "deg/s^2": "3600 deg/s^2",
     "mm/s^2": "100 mm/s^2", "s": "2 s", "ms": "25 ms", "us": "50 us", "years": "5 years", "mV": "2 mV",
     "V": "1.5 V", "uA": "15 uA", "mAh": "3000 mAh", "Hz": "20 Hz", "degC": "20 degC",
+    "mT": "30 mT", "%/K": "-0.12 %/K", "ppm/K": "11.5 ppm/K", "uV/K": "2 uV/K", "uF": "100 uF", "mW": "3 mW",
 }
 
 
@@ -255,6 +262,9 @@ class _Reader:
             kwargs["power"] = self.power(self.table(data, "power", ""))
         if "battery" in data:
             kwargs["battery"] = self.section(d.BatteryDesign, self.table(data, "battery", ""), "battery")
+        for key, cls in _OPTIONAL_SECTIONS.items():
+            if key in data:
+                kwargs[key] = self.section(cls, self.table(data, key, ""), key)
         scenarios = self.array_of_tables(data, "motion", "")
         kwargs["motion"] = tuple(
             self.section(d.MotionScenario, m, f"motion[{i}]") for i, m in enumerate(scenarios)
@@ -530,6 +540,12 @@ def _design_dict(design: d.ActuatorDesign) -> dict:
     requirements = _section_table(design.requirements)
     if requirements:
         data["requirements"] = requirements
+    for key in _OPTIONAL_SECTIONS:
+        if getattr(design, key) is not None:
+            data[key] = _section_table(getattr(design, key))
+    accuracy = _section_table(design.accuracy)
+    if accuracy:
+        data["accuracy"] = accuracy
     for key in ("gear_train", "motion"):
         if not data[key]:
             del data[key]
@@ -1063,6 +1079,8 @@ class _Merger:
         self.section(doc, "battery", old.battery, new.battery)
         self.array(doc, "motion", old.motion, new.motion, self.fields, _align_named)
         self.section(doc, "requirements", old.requirements, new.requirements)
+        for key in (*_OPTIONAL_SECTIONS, "accuracy"):
+            self.section(doc, key, getattr(old, key), getattr(new, key))
 
     def stage(self, table, old, new) -> None:
         if "kind" not in table:
@@ -1307,6 +1325,8 @@ def design_schema() -> dict:
         "battery": battery,
         "motion": {"type": "array", "items": motion, "description": "motions that can happen while asleep"},
         "requirements": _object_schema(d.Requirements, _doc_line(d.Requirements)),
+        **{key: _object_schema(cls, _doc_line(cls)) for key, cls in (*_OPTIONAL_SECTIONS.items(),
+                                                                       ("accuracy", d.AccuracyDesign))},
     })
     return {
         "$schema": "https://json-schema.org/draft/2020-12/schema",

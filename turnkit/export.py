@@ -239,10 +239,25 @@ def _context(result: SizingResult, generated_at: datetime | None) -> dict[str, A
         "warnings": list(result.warnings),
         "cautions": list(result.cautions),
         "curves": list(result.curves),
+        "accuracy_table": _accuracy_table(result),
         "inputs_text": inputs_text,
         # A code fence longer than any run of backticks in the text, so the text cannot close it.
         "inputs_fence": "`" * max(3, 1 + max((len(r) for r in re.findall(r"`+", inputs_text)), default=0)),
     }
+
+
+def _accuracy_table(result: SizingResult) -> dict[str, Any] | None:
+    """The accuracy budget over temperature, three sums side by side, as text rows (from its curve)."""
+    curve = next((c for c in result.curves if c.key == "accuracy_vs_temperature"), None)
+    if curve is None:
+        return None
+    sums = curve.series[:3]
+    rows = [[_number_text(float(t), "degC")] + [_number_text(float(s.y[i]), curve.y_unit) for s in sums]
+            for i, t in enumerate(sums[0].x)]
+    waterfall = next((c for c in result.curves if c.key == "accuracy_waterfall"), None)
+    return {"columns": [s.name for s in sums], "rows": rows, "note": curve.note,
+            "parts": waterfall.note.split("; ") if waterfall is not None and waterfall.note else [],
+            "parts_title": waterfall.title if waterfall is not None else ""}
 
 
 def _anchor(key: str) -> str:

@@ -11,7 +11,8 @@ Result keys (``result.value(key)``) carry their unit in the name; the curve
 keys are ``"life_vs_poll_period"`` (or ``"current_vs_poll_period"`` on a host
 supply), ``"backdrive_event"``, ``"backdrive_error"``,
 ``"resolution_vs_reduction"``, ``"backdrive_speed_vs_reduction"``,
-``"current_profile"``, ``"sensor_error"`` and, when the design names a measured
+``"current_profile"``, ``"sensor_error"``, ``"accuracy_vs_temperature"``,
+``"accuracy_waterfall"`` and, when the design names a measured
 sweep (``[sensor] sweep``), ``"calibration_sweep"``.
 
 Examples
@@ -949,9 +950,17 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
                 ambiguous_count=result.ambiguous_count, silent_error_count=result.silent_error_count,
                 overflow_count=result.overflow_count, max_output_error=max_err, output_unit=unit, note=note))
 
+    # -- accuracy budget over temperature, magnet fields, count keeping (its own stage) --
+    budget_stage = _accuracy_stage(design, curves)
+    values.extend(budget_stage.values)
+    checks = [c for c in checks if c.key not in budget_stage.replaced_checks] + list(budget_stage.checks)
+    warns.extend(budget_stage.warnings)
+    assumptions.extend(budget_stage.assumptions)
+
     # -- curves ----------------------------------------------------------------
     curve_list: list[Curve] = []
     if curves:
+        curve_list.extend(budget_stage.curves)
         curve_list.extend(_curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
                                   max_period_s, required_rpm, req_speed, out_speed_unit, temperature_C,
                                   guaranteed_rpm, resolution_out, base, usable))
@@ -1270,3 +1279,383 @@ def _sensor_summary_named(sensor_design, stages: tuple, calibrated: bool):
                                                 f"has gaps and cannot be fitted ({reason})")
     raise DesignValueError("sensor", "the [sensor] section", "a sensor whose simulated calibration sweep can be "
                                                              "fitted", hint=reason)
+
+
+# ---------------------------------------------------------------------------
+# accuracy budget over temperature, magnet and latch fields, count keeping
+# ---------------------------------------------------------------------------
+
+class _BudgetStage(tuple):
+    """What :func:`_accuracy_stage` adds to a sizing: values, checks, curves, warnings, assumptions."""
+
+    __slots__ = ()
+    values = property(lambda self: self[0])
+    checks = property(lambda self: self[1])
+    curves = property(lambda self: self[2])
+    warnings = property(lambda self: self[3])
+    assumptions = property(lambda self: self[4])
+    replaced_checks = property(lambda self: ("output_accuracy",))
+
+
+def _floor_digits(value: float, digits: int = 3) -> str:
+    """``value`` rounded down to ``digits`` significant figures, as text (advice never rounds past a limit)."""
+    if value <= 0:
+        return "0"
+    step = 10.0 ** (math.floor(math.log10(value)) - digits + 1)
+    return f"{math.floor(value / step) * step:.{digits}g}"
+
+
+def _service_temperatures_degC(design: ActuatorDesign) -> np.ndarray:
+    """Budget temperatures: the service range in up to 9 steps plus the calibration temperature inside it."""
+    low, high = design.requirements.temperature_range_degC()
+    grid = np.linspace(low, high, 9) if high > low else np.array([low])
+    cal = design.accuracy.calibration_temperature_degC
+    if low <= cal <= high:
+        grid = np.append(grid, cal)
+    return np.unique(grid)
+
+
+def _magnet_numbers(mag):
+    """(remanence at 20 degC in mT, its coefficient in %/K, highest temperature in degC, grade)."""
+    from .magnet import GRADES
+
+    grade = GRADES[mag.grade]
+    return (mag.remanence_mT if mag.remanence_mT is not None else grade.remanence_mT,
+            mag.remanence_drift_pct_per_K if mag.remanence_drift_pct_per_K is not None
+            else grade.remanence_drift_pct_per_K,
+            mag.max_temperature_degC if mag.max_temperature_degC is not None else grade.max_temperature_degC,
+            grade)
+
+
+def _field_state(design: ActuatorDesign, temps: np.ndarray, airgap_mm: float, fine_error_deg: float) -> dict:
+    """Fields at the sensor and the latches over temperature, and whether each field check passes."""
+    from . import countkeeping, magnet as mag_mod
+
+    mag = design.magnet
+    br20, drift, _, _ = _magnet_numbers(mag)
+    br = np.atleast_1d(mag_mod.remanence_mT(br20, drift, temps))
+    latch_r = mag.latch_radius_mm if mag.latch_radius_mm is not None else 0.5 * mag.diameter_mm
+    b_sensor = np.atleast_1d(mag_mod.sensor_field_mT(br, mag.diameter_mm, mag.thickness_mm, airgap_mm))
+    b_latch = np.atleast_1d(mag_mod.latch_peak_field_mT(br, mag.diameter_mm, mag.thickness_mm, airgap_mm, latch_r))
+    state = {"b_sensor": b_sensor, "b_latch": b_latch, "switching": None,
+             "sensor_ok": bool(np.min(b_sensor) >= design.sensor.minimum_field_mT)}
+    lat = design.latches
+    passes = [state["sensor_ok"]]
+    if lat.operate_field_mT is not None:
+        sw = mag_mod.latch_switching(b_latch, temps, operate_field_mT=lat.operate_field_mT,
+                                     release_field_mT=lat.release_field_mT, threshold_spread_mT=lat.threshold_spread_mT,
+                                     threshold_drift_pct_per_K=lat.threshold_drift_pct_per_K)
+        state["switching"] = sw
+        passes += [sw.operates, sw.releases]
+        if design.count_memory is not None:
+            rs = countkeeping.resync(sw.hysteresis_deg, min(sw.switch_spread_deg, 90.0), fine_error_deg)
+            state["resync"] = rs
+            passes.append(rs.ok)
+    state["all_ok"] = all(passes)
+    return state
+
+
+def _largest_airgap_mm(design: ActuatorDesign, temps: np.ndarray, fine_error_deg: float) -> float | None:
+    """Largest airgap at which every field check passes (bisection on the same checks), or None."""
+    hi = design.magnet.airgap_mm
+    lo = min(0.05, hi)
+    if not _field_state(design, temps, lo, fine_error_deg)["all_ok"]:
+        return None
+    if _field_state(design, temps, hi, fine_error_deg)["all_ok"]:
+        return hi
+    for _ in range(30):
+        mid = 0.5 * (lo + hi)
+        if _field_state(design, temps, mid, fine_error_deg)["all_ok"]:
+            lo = mid
+        else:
+            hi = mid
+    return math.floor(lo * 1000.0) / 1000.0 if lo >= 0.001 else lo
+
+
+def _airgap_advice(design, temps, fine_error_deg) -> str:
+    gap = _largest_airgap_mm(design, temps, fine_error_deg)
+    if gap is None:
+        return ("no airgap makes every field check pass: use a stronger grade, a larger magnet or latches with "
+                "lower operate and release points")
+    return (f"reduce the magnet airgap to at most {gap:g} mm (now {design.magnet.airgap_mm:g} mm), or use a "
+            "stronger grade or a larger magnet")
+
+
+def _accuracy_stage(design: ActuatorDesign, curves: bool = True) -> _BudgetStage:
+    """The output accuracy budget over the service temperatures, the magnet's field checks and the
+    count-keeping checks (each with advice computed from the same function as its check).
+
+    Cached on the sections it reads: a poll-period or battery change on the dashboard reuses it.
+    """
+    from .design import CounterDesign, PowerDesign, ScheduleDesign
+
+    key = replace(design, name="-", description="", counter=CounterDesign(), schedule=ScheduleDesign(),
+                  power=PowerDesign(), battery=None, motion=())
+    return _accuracy_stage_cached(key, bool(curves))
+
+
+@lru_cache(maxsize=64)
+def _accuracy_stage_cached(design: ActuatorDesign, curves: bool) -> _BudgetStage:
+    from . import accuracy as acc_mod, countkeeping, magnet as mag_mod
+
+    stages = tuple(design.gear_train)
+    train = _train_cached(stages)[0]
+    summary = _sensor_summary(design.sensor, stages, bool(design.sensor.calibrated))
+    unit = train.output_unit
+    stroke = design.requirements.stroke_mm if unit == "mm" else design.requirements.stroke_deg
+    acc = design.accuracy
+    temps = _service_temperatures_degC(design)
+    low, high = float(temps[0]), float(temps[-1])
+    values: list[Value] = []
+    checks: list[Check] = []
+    warns: list[str] = []
+    assumptions: list[tuple[str, str]] = []
+    curve_list: list[Curve] = []
+    per_motor_deg = train.output_resolution(1.0)
+    fine_err = summary.peak_error_deg
+
+    def add(key, label, value, unit_="", group="accuracy", note=""):
+        values.append(Value(key, label, value, unit_, group, "", note))
+
+    # -- magnet and fields ----------------------------------------------------
+    state = None
+    if design.magnet is not None:
+        mag = design.magnet
+        br20, drift, max_t, grade = _magnet_numbers(mag)
+        state = _field_state(design, temps, mag.airgap_mm, fine_err)
+        add("magnet_grade", "Magnet grade", grade.name, "", "magnet",
+            note=f"remanence {br20:g} mT at 20 degC, {drift:g} %/K")
+        add("sensor_field_cold_mT", f"Field at the AMR sensor at {low:g} degC", float(state["b_sensor"][0]), "mT",
+            "magnet", note="on-axis closed form for a diametrically magnetised disc")
+        add("sensor_field_hot_mT", f"Field at the AMR sensor at {high:g} degC", float(state["b_sensor"][-1]), "mT",
+            "magnet")
+        add("latch_peak_field_hot_mT", f"Peak field at a latch at {high:g} degC", float(state["b_latch"][-1]), "mT",
+            "magnet")
+        assumptions.append((f"Magnet remanence {br20:g} mT at 20 degC, falling {-drift:g} %/K (reversible, linear)",
+                            grade.source if mag.remanence_mT is None and mag.remanence_drift_pct_per_K is None
+                            else "design file"))
+        assumptions.append(("Magnet field from the surface-charge model of a uniformly, diametrically magnetised "
+                            "disc; on the axis in closed form",
+                            "E. P. Furlani, Permanent Magnet and Electromechanical Devices (2001), ch. 2; "
+                            "G. Caciagli et al., J. Magn. Magn. Mater. 456, 423 (2018)"))
+        weakest = int(np.argmin(state["b_sensor"]))
+        checks.append(_check("magnet_field_at_sensor", "Magnet field at the AMR sensor reaches its minimum field "
+                             f"over {low:g}..{high:g} degC", float(state["b_sensor"][weakest]),
+                             design.sensor.minimum_field_mT, "mT", ">=",
+                             advice="" if state["sensor_ok"] else _airgap_advice(design, temps, fine_err)))
+        rated = sorted((g for g in mag_mod.GRADES.values() if g.max_temperature_degC >= high),
+                       key=lambda g: -g.remanence_mT)
+        t_advice = (f"choose a grade rated to at least {high:g} degC, e.g. grade = '{rated[0].key}' "
+                    f"({rated[0].name}, up to {rated[0].max_temperature_degC:g} degC)") if rated else \
+            "no grade in turnkit's table is rated that hot: keep the magnet cooler"
+        checks.append(_check("magnet_temperature", "Magnet stays below its highest working temperature", high, max_t,
+                             "degC", "<=", advice=t_advice))
+        sw = state["switching"]
+        if sw is not None:
+            io, ir = sw.worst_operate_index, sw.worst_release_index
+            advice = "" if sw.operates and sw.releases else _airgap_advice(design, temps, fine_err)
+            checks.append(_check("latch_operates", f"Latch field reaches the operate point (worst at "
+                                 f"{temps[io]:g} degC)", float(sw.peak_field_mT[io]), float(sw.operate_needed_mT[io]),
+                                 "mT", ">=", advice=advice))
+            checks.append(_check("latch_releases", f"Latch field reaches the release point (worst at "
+                                 f"{temps[ir]:g} degC)", float(sw.peak_field_mT[ir]), float(sw.release_needed_mT[ir]),
+                                 "mT", ">=", advice=advice))
+            add("latch_switch_spread_deg", "Latch switch-angle spread from the field (either way)",
+                sw.switch_spread_deg, "deg", "magnet",
+                note="operate/release spread and drift against the field over temperature")
+            add("latch_field_hysteresis_deg", "Latch hysteresis from the field", sw.hysteresis_deg, "deg", "magnet")
+            if sw.switch_spread_deg > design.latches.switch_point_tolerance_deg:
+                warns.append(f"The magnet's field gives a latch switch-angle spread of {sw.switch_spread_deg:.3g} deg, "
+                             f"more than the {design.latches.switch_point_tolerance_deg:g} deg in [latches] "
+                             "switch_point_tolerance, which the half-turn margin uses.")
+    elif design.accuracy.eccentricity_mm > 0 or design.accuracy.stray_field_mT > 0:
+        key = "eccentricity" if design.accuracy.eccentricity_mm > 0 else "stray_field"
+        raise DesignValueError(f"accuracy.{key}", getattr(design.accuracy, f"{key}_mm" if key == "eccentricity"
+                                                          else "stray_field_mT"),
+                               "left out without a [magnet] section", hint="describe the magnet in [magnet]")
+
+    # -- contributions at the output ------------------------------------------
+    parts: list[acc_mod.Contribution] = []
+
+    def part(key, label, motor_deg=None, out=None, shape="sine", note=""):
+        size = np.asarray(out if out is not None else np.asarray(motor_deg, dtype=float) * per_motor_deg, dtype=float)
+        if np.any(size > 0):
+            parts.append(acc_mod.Contribution(key, label, size, shape, note))
+
+    part("sensor_residual", "sensor error" + (" after calibration" if design.sensor.calibrated else
+                                              " (uncalibrated)"), summary.peak_error_deg)
+    part("noise", "noise", summary.noise_sigma_deg, shape="normal", note="1 sigma; counted k times")
+    if acc.approach == "either":
+        part("backlash", "backlash, approached from either side", out=0.5 * train.backlash_at_output(),
+             shape="two_point", note="half the lost motion either way of a zero set mid-band")
+    dt = temps - acc.calibration_temperature_degC
+    s = design.sensor
+    amp = s.amplitude_mV * np.maximum(1.0 + s.amplitude_drift_pct_per_K / 100.0 * dt, 1e-6)
+    off = s.offset_drift_uV_per_K * 1e-3 * np.abs(dt) / amp
+    if np.any(off > 0):
+        if np.any(off >= 0.7):
+            raise DesignValueError("sensor.offset_drift", s.offset_drift_uV_per_K,
+                                   "small enough that the drifted offset stays well below the amplitude", unit="uV/K")
+        part("offset_drift", "bridge offset drift since calibration",
+             [angle_error.offset_peak_error(o, o).exact_mech_deg for o in off])
+    gain = s.gain_mismatch_drift_pct_per_K / 100.0 * np.abs(dt)
+    if np.any(gain > 0):
+        part("gain_drift", "bridge gain-mismatch drift since calibration",
+             [angle_error.gain_peak_error(1.0 + g).exact_mech_deg for g in np.minimum(gain, 2.0)])
+    if state is not None:
+        mag = design.magnet
+        if acc.eccentricity_mm > 0:
+            part("eccentricity", "sensor off the magnet axis", np.full(temps.size, mag_mod.eccentricity_error_deg(
+                mag.diameter_mm, mag.thickness_mm, mag.airgap_mm, acc.eccentricity_mm)),
+                note="field direction at the displaced sensor, from the field model")
+        if acc.stray_field_mT > 0:
+            part("stray_field", "stray field", mag_mod.stray_field_error_deg(acc.stray_field_mT, state["b_sensor"]),
+                 note="asin(B_stray / B_magnet)")
+        if s.anisotropy_field_mT > 0:
+            part("finite_field", "finite magnet field (AMR film lag)",
+                 mag_mod.finite_field_error_deg(s.anisotropy_field_mT, state["b_sensor"]), note="B_k / (2B)")
+    if acc.tilt_deg > 0:
+        part("tilt", "sensor tilt", np.full(temps.size, mag_mod.tilt_error_deg(acc.tilt_deg)))
+    te = acc.transmission_error_mm if unit == "mm" else acc.transmission_error_deg
+    wrong = acc.transmission_error_deg if unit == "mm" else acc.transmission_error_mm
+    if wrong is not None:
+        raise DesignValueError("accuracy.transmission_error", wrong, f"given in {unit} (the output's unit)",
+                               unit="deg" if unit == "mm" else "mm")
+    if te:
+        part("transmission_error", "gear transmission error and runout", out=np.full(temps.size, te))
+    if acc.lead_error_mm is not None:
+        if unit != "mm":
+            raise DesignValueError("accuracy.lead_error", acc.lead_error_mm, "left out for a rotary output", unit="mm")
+        part("lead_error", "screw lead error", out=np.full(temps.size, acc.lead_error_mm), shape="uniform")
+    if acc.screw_expansion_ppm_per_K is not None:
+        if unit != "mm" or stroke is None:
+            raise DesignValueError("accuracy.screw_expansion", acc.screw_expansion_ppm_per_K,
+                                   "used only with a linear output and requirements.stroke", unit="ppm/K")
+        diff = abs(acc.screw_expansion_ppm_per_K - acc.housing_expansion_ppm_per_K) * 1e-6
+        part("thermal_expansion", "thermal expansion, screw against housing", out=diff * stroke * np.abs(dt),
+             shape="uniform", note="over the whole stroke from the calibration temperature")
+    result = acc_mod.budget(parts, temps, coverage_factor=acc.noise_coverage, samples=acc.monte_carlo_samples,
+                            seed=acc.seed)
+    names = {"worst_case": "worst case", "rss": "RSS", "monte_carlo": "Monte Carlo"}
+    for method in acc_mod.METHODS:
+        worst, at_t = result.worst(method)
+        add(f"accuracy_{method}", f"Output accuracy over {low:g}..{high:g} degC, {names[method]}", worst, unit,
+            note=f"largest at {at_t:g} degC" + ("; the method checked" if method == acc.method else ""))
+    chosen, chosen_t = result.worst(acc.method)
+    assumptions.append((f"Accuracy budget: systematic errors as bounds, random errors at k = {acc.noise_coverage:g} "
+                        f"sigma; Monte Carlo quantile at {100 * result.coverage:.4g} % of |error|, "
+                        f"{result.samples} draws, seed {acc.seed}; the requirement is checked against the "
+                        f"{names[acc.method]} sum (design-file choice, default worst case)", "(common practice)"))
+    target = design.requirements.output_accuracy_mm if unit == "mm" else design.requirements.output_accuracy_deg
+    if target is not None:
+        advice = ""
+        top = acc_mod.largest_contribution(result, acc.method) if chosen > target else None
+        if top is not None:
+            i = int(np.argmax(result.total(acc.method)))
+            now = float(top.extreme(result.coverage_factor)[i])
+            factor = acc_mod.scale_to_pass(result, top.key, acc.method, target, seed=acc.seed)
+            if factor is None:
+                advice = (f"the largest part is {top.label} ({now:.3g} {unit} at {temps[i]:g} degC), but even without "
+                          "it the sum is too large: cut several parts, or relax the requirement")
+            else:
+                advice = (f"the largest part is {top.label} ({now:.3g} {unit} at {temps[i]:g} degC); the "
+                          f"{names[acc.method]} sum passes with it at most {_floor_digits(now * factor)} {unit}")
+        checks.append(_check("output_accuracy", f"Output accuracy over {low:g}..{high:g} degC "
+                             f"({names[acc.method]} sum) is within the allowed error", chosen, target, unit, "<=",
+                             advice=advice))
+
+    # -- count keeping through supply events ------------------------------------
+    mem = design.count_memory
+    if mem is not None:
+        travel = mem.travel_per_day_mm if unit == "mm" else mem.travel_per_day_deg
+        wrong = mem.travel_per_day_deg if unit == "mm" else mem.travel_per_day_mm
+        if wrong is not None:
+            raise DesignValueError("count_memory.travel_per_day", wrong, f"given in {unit} (the output's unit)",
+                                   unit="deg" if unit == "mm" else "mm")
+        qt_day = 4.0 * (travel or 0.0) / float(train.travel_per_motor_turn)
+        life = mem.service_life_years or design.requirements.battery_life_years or 10.0
+        per_day = countkeeping.writes_per_day(mem.write_strategy, quarter_turns_per_day=qt_day,
+                                              write_period_s=mem.write_period_s,
+                                              supply_events_per_day=mem.supply_events_per_day)
+        end = countkeeping.endurance(per_day, life, mem.rated_write_cycles, mem.wear_leveling_slots)
+        add("memory_writes_per_day", "Count writes to non-volatile memory per day", per_day, "", "count keeping",
+            note=f"strategy {mem.write_strategy}")
+        need_slots = countkeeping.slots_needed(per_day, life, mem.rated_write_cycles)
+        checks.append(_check("memory_endurance", f"Count writes over {life:g} years stay within the memory's rated "
+                             "cycles", end.lifetime_writes, end.rated_writes, "writes", "<=",
+                             advice=f"spread the writes over at least {need_slots} locations "
+                                    f"(wear_leveling_slots = {need_slots}), or write less often"))
+        if mem.write_strategy == "on_brownout":
+            hu = countkeeping.hold_up(mem.holdup_capacitance_uF, mem.brownout_threshold_V, mem.minimum_write_voltage_V,
+                                      mem.save_power_mW, mem.save_time_ms, mem.detection_latency_us)
+            c_need = countkeeping.capacitance_needed_uF(mem.brownout_threshold_V, mem.minimum_write_voltage_V,
+                                                        mem.save_power_mW, mem.save_time_ms, mem.detection_latency_us)
+            add("holdup_capacitance_needed_uF", "Hold-up capacitance needed for one save", c_need, "uF",
+                "count keeping", note="1/2 C (V1^2 - V2^2) >= P (t_detect + t_save)")
+            checks.append(_check("holdup_energy", "Hold-up capacitor carries the brown-out detection and one save",
+                                 hu.available_uJ, hu.needed_uJ, "uJ", ">=",
+                                 advice=f"a hold-up capacitance of at least {math.ceil(c_need * 100) / 100:g} uF"))
+        if state is not None and "resync" in state:
+            rs = state["resync"]
+            rs_advice = "" if rs.ok else _airgap_advice(design, temps, fine_err)
+            basis = "from the magnet's field"
+        else:
+            lat = design.latches
+            rs = countkeeping.resync(lat.hysteresis_deg, lat.switch_point_tolerance_deg, fine_err)
+            room = 2.0 * (45.0 - lat.switch_point_tolerance_deg - fine_err)
+            rs_advice = (f"latches with a hysteresis of at most {math.floor(room * 100) / 100:g} deg"
+                         if room > 0 else "tighten the latch switch-point tolerance and the sensor error")
+            basis = "from [latches]"
+        add("resync_guard_deg", "Power-up guard band around each latch edge", rs.guard_deg, "deg", "count keeping",
+            note=f"half the hysteresis + switch-angle spread + sensor error, {basis}; "
+                 f"{100 * rs.untrusted_fraction:.3g} % of a turn is re-synced from the stored count")
+        checks.append(_check("power_up_resync", "Power-up re-sync inside the latch hysteresis band is decidable",
+                             rs.guard_deg, 45.0, "deg", "<=", advice=rs_advice))
+        assumptions.append(("A count kept through a supply event assumes nothing moved while the electronics had no "
+                            "power at all; re-home after a power loss where a wrong position can hurt someone",
+                            "(common practice)"))
+
+    # -- plots ------------------------------------------------------------------------
+    if curves:
+        series = [Series("worst case", temps, result.worst_case), Series("RSS", temps, result.rss),
+                  Series("Monte Carlo", temps, result.monte_carlo)]
+        if target is not None:
+            series.append(Series("allowed error", temps[[0, -1]], np.full(2, target), style="dashed"))
+        curve_list.append(Curve("accuracy_vs_temperature", "Output accuracy budget over temperature", "temperature",
+                                "degC", "output error", unit, tuple(series),
+                                markers=(Marker(f"checked ({names[acc.method]})", chosen_t, chosen),),
+                                note=f"checked against the {names[acc.method]} sum"))
+        i = int(np.argmax(result.total(acc.method)))
+        sizes = result.at(i)
+        order = sorted(sizes, key=sizes.get, reverse=True)
+        labels = {c.key: c.label for c in result.contributions}
+        cumulative = np.concatenate([[0.0], np.cumsum([sizes[k] for k in order])])
+        x = np.arange(len(order) + 1, dtype=float)
+        wf = [Series("worst-case running sum", x, cumulative, style="step")]
+        for method in ("rss", "monte_carlo"):
+            wf.append(Series(names[method], x[[0, -1]], np.full(2, float(result.total(method)[i])), style="dashed"))
+        curve_list.append(Curve(
+            "accuracy_waterfall", f"Accuracy budget at {temps[i]:g} degC, largest part first", "contribution", "",
+            "output error", unit, tuple(wf),
+            note="; ".join(f"{n + 1}: {labels[k]} {sizes[k]:.3g} {unit}" for n, k in enumerate(order))))
+    return _BudgetStage((tuple(values), tuple(checks), tuple(curve_list), tuple(warns), tuple(assumptions)))
+
+
+def latch_switch_spread_from_field(design: ActuatorDesign) -> tuple[float, float] | None:
+    """Field-derived latch switch-point tolerance and hysteresis of a design (deg, deg), or None.
+
+    The switch-angle spread (either way) and nominal hysteresis that the magnet's field
+    gives the latches over the service temperatures (:func:`turnkit.magnet.latch_switch_spread_deg`),
+    for a counting bound that narrows the quadrant by them. None when the design has no
+    ``[magnet]`` or no latch operate/release points.
+    """
+    if design.magnet is None or design.latches.operate_field_mT is None:
+        return None
+    from .magnet import latch_switch_spread_deg
+
+    temps = _service_temperatures_degC(design)
+    b_latch = _field_state(design, temps, design.magnet.airgap_mm, 0.0)["b_latch"]
+    lat = design.latches
+    return latch_switch_spread_deg(b_latch, temps, operate_field_mT=lat.operate_field_mT,
+                                   release_field_mT=lat.release_field_mT, threshold_spread_mT=lat.threshold_spread_mT,
+                                   threshold_drift_pct_per_K=lat.threshold_drift_pct_per_K)

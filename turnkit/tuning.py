@@ -288,6 +288,7 @@ def tunables_for(design: ActuatorDesign) -> tuple[Tunable, ...]:
             out.append(Tunable(f"requirements.{attr}", label, unit_, lo, hi, True, value / 1000.0,
                                (lambda d, a=attr: getattr(d.requirements, a)),
                                _section_setter("requirements", attr), group="requirements"))
+    out.extend(_magnet_and_temperature_tunables(design))
     return tuple(out)
 
 
@@ -304,3 +305,24 @@ def log_position(t: Tunable, value: float) -> float:
     if t.log:
         return (math.log(value) - math.log(t.minimum)) / (math.log(t.maximum) - math.log(t.minimum))
     return (value - t.minimum) / (t.maximum - t.minimum)
+
+
+def _magnet_and_temperature_tunables(design: ActuatorDesign) -> list[Tunable]:
+    """Airgap and grade of the magnet (when described) and the service temperature range."""
+    from .magnet import GRADES
+
+    out: list[Tunable] = []
+    m = design.magnet
+    if m is not None:
+        lo, hi = _span(m.airgap_mm, 0.1, 4.0, 0.1, 20.0)
+        out.append(Tunable("magnet.airgap_mm", "Magnet airgap (mm)", "mm", lo, hi, False, 0.05,
+                           lambda d: d.magnet.airgap_mm, _section_setter("magnet", "airgap_mm"), group="magnet"))
+        out.append(Tunable("magnet.grade", "Magnet grade", "", 0, 0, False, 0, lambda d: d.magnet.grade,
+                           _section_setter("magnet", "grade"), choices=tuple(GRADES), group="magnet"))
+    for index, (attr, label) in enumerate((("service_temperature_low_degC", "Lowest service temperature (degC)"),
+                                           ("service_temperature_high_degC", "Highest service temperature (degC)"))):
+        out.append(Tunable(f"requirements.{attr}", label, "degC", -60.0, 125.0, False, 1.0,
+                           lambda d, i=index: d.requirements.temperature_range_degC()[i],
+                           _section_setter("requirements", attr), group="requirements"))
+    return out
+

@@ -546,3 +546,25 @@ def test_demo_save_and_export_round_trip(tmp_path):
         assert f"window-shade-winder-summary.{suffix}" in dash.files.value
     data = json.loads((tmp_path / "window-shade-winder-summary.json").read_text())
     assert json.dumps(data).count(dash.result.design_name) >= 1
+
+
+@pytest.mark.parametrize("demo", ["irrigation-gate-valve"], indirect=True)
+def test_demo_airgap_grade_and_temperature_controls_drive_the_accuracy_and_field_checks(demo):
+    for key in ("magnet.airgap_mm", "magnet.grade", "requirements.service_temperature_low_degC",
+                "requirements.service_temperature_high_degC"):
+        assert key in demo.controls, list(demo.controls)
+    assert type(demo.controls["magnet.grade"]).__name__ == "Dropdown"
+    budget = demo.figures["accuracy_vs_temperature"]
+    waterfall = demo.figures["accuracy_waterfall"].figure.xaxis[0]
+    first_part = demo.result.curve("accuracy_waterfall").note.split("; ")[0]
+    assert first_part.startswith("1: " + waterfall.major_label_overrides[1] + " ")
+    demo.controls["magnet.airgap_mm"].value = demo.controls["magnet.airgap_mm"].max
+    assert demo.error == ""
+    row = demo.requirements.value.split("data-key='magnet_field_at_sensor'")[1].split("</tr>")[0]
+    assert "FAIL" in row and "airgap to at most" in row
+    demo.controls["requirements.service_temperature_high_degC"].value = 70.0
+    np.testing.assert_array_equal(budget.series["worst case"].data["x"],
+                                  demo.result.curve("accuracy_vs_temperature").series[0].x)
+    assert max(budget.series["worst case"].data["x"]) == 70.0
+    demo.controls["magnet.grade"].value = "smco5"
+    assert demo.design.magnet.grade == "smco5" and demo.error == ""

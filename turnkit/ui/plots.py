@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import html
 import math
+import re
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -307,7 +308,20 @@ def build_figure(curve: Curve, *, width: int = 430, height: int = 290) -> Figure
     legend.items.append(LegendItem(label={"field": "name"}, renderers=[marker_r]))
     legend.items.append(LegendItem(label={"field": "name"}, renderers=[vline_r]))
     legend.items.append(LegendItem(label={"field": "name"}, renderers=[band_r]))
+    _label_budget_parts(h, curve)
     return h
+
+
+def _label_budget_parts(h: FigureHandles, curve: Curve) -> None:
+    """Name each step of the accuracy waterfall on the x axis (the parts are listed in its note)."""
+    if curve.key != "accuracy_waterfall":
+        return
+    # The note reads "1: <part> <size> <unit>; 2: ..."; the tick k names the k-th riser.
+    parts = re.findall(r"(\d+): (.+?) \S+ \S+(?:; |$)", curve.note)
+    axis = h.figure.xaxis[0]
+    axis.ticker = [0] + [int(k) for k, _ in parts]
+    axis.major_label_overrides = {0: "", **{int(k): name for k, name in parts}}
+    axis.major_label_orientation = math.pi / 4
 
 
 def _same_column(a, b) -> bool:
@@ -367,6 +381,7 @@ def update(handles: FigureHandles, curve: Curve) -> None:
             handles.caption.text = caption
         if handles.figure.title.text != curve.title:
             handles.figure.title.text = curve.title
+        _label_budget_parts(handles, curve)
     finally:
         if doc is not None:
             doc.unhold()

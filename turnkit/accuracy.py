@@ -1,0 +1,267 @@
+"""The accuracy budget at the output: every contribution, three ways of summing them.
+
+Each :class:`Contribution` is an error at the output (mm or deg) known at a
+set of temperatures. It is either *systematic* (a bounded error whose size is
+given as a half-width ``a``, with a shape: a sine over the turn, uniform in
+its band, or one of two values such as backlash taken up one way or the
+other) or *random* (zero-mean normal with standard deviation ``σ``).
+
+:func:`budget` sums them at every temperature in three ways, side by side:
+
+* worst case: Σ a + k·Σ σ (every error at its extreme at once);
+* RSS (root sum of squares): √(Σ a² + Σ (k·σ)²), treating each bound as if
+  it were k standard deviations (common practice);
+* Monte Carlo: the two-sided quantile at coverage p = erf(k/√2) (99.73 % for
+  k = 3) of |Σ errors| drawn from their shapes; the same draws at every
+  temperature, with a fixed seed, so results repeat run to run.
+
+RSS is never above the worst case; nor is Monte Carlo when every term is
+systematic (with random terms it can pass it by its sampling error, since a
+normal error is unbounded). Tests check both.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+from functools import lru_cache
+
+import numpy as np
+
+from .errors import DesignValueError
+
+__all__ = [
+    "SHAPES",
+    "METHODS",
+    "Contribution",
+    "Budget",
+    "budget",
+    "largest_contribution",
+    "scale_to_pass",
+]
+
+#: Error shapes: sine over the turn, uniform in ±a, one of ±a, normal (random).
+SHAPES = ("sine", "uniform", "two_point", "normal")
+
+#: Ways of summing the budget, by design-file name.
+METHODS = ("worst_case", "rss", "monte_carlo")
+
+
+@dataclass(frozen=True, slots=True)
+class Contribution:
+    """One error contribution at the output.
+
+    Parameters
+    ----------
+    key : str
+        Stable machine name (``"backlash"``).
+    label : str
+        Plain words for people.
+    size : numpy.ndarray
+        Half-width ``a`` (systematic) or standard deviation ``σ`` (random) at
+        each temperature of the budget, in the output unit (mm or deg).
+    shape : str
+        One of :data:`SHAPES`; ``"normal"`` makes it random.
+    note : str
+        How it was obtained.
+    """
+
+    key: str
+    label: str
+    size: np.ndarray
+    shape: str = "uniform"
+    note: str = ""
+
+    def __post_init__(self):
+        if self.shape not in SHAPES:
+            raise DesignValueError(f"Contribution({self.key}).shape", self.shape, f"one of {SHAPES}")
+        size = np.atleast_1d(np.asarray(self.size, dtype=float)).copy()
+        if not np.all(np.isfinite(size)) or np.any(size < 0):
+            raise DesignValueError(f"Contribution({self.key}).size", self.size, "finite and >= 0")
+        size.flags.writeable = False
+        object.__setattr__(self, "size", size)
+
+    @property
+    def random(self) -> bool:
+        """True for a random (normal) contribution."""
+        return self.shape == "normal"
+
+    def extreme(self, k: float) -> np.ndarray:
+        """Size counted in the worst case: a, or k·σ for a random term (output unit)."""
+        return self.size * (k if self.random else 1.0)
+
+
+@dataclass(frozen=True, slots=True)
+class Budget:
+    """The summed accuracy budget over temperature.
+
+    Attributes
+    ----------
+    temperatures_degC : numpy.ndarray
+        Temperatures (degC).
+    contributions : tuple of Contribution
+        The parts, sizes over ``temperatures_degC``.
+    coverage_factor : float
+        k: random terms count k·σ; Monte Carlo coverage erf(k/√2).
+    worst_case, rss, monte_carlo : numpy.ndarray
+        The three sums at each temperature (output unit).
+    samples : int
+        Monte Carlo draws per temperature.
+    """
+
+    temperatures_degC: np.ndarray
+    contributions: tuple[Contribution, ...]
+    coverage_factor: float
+    worst_case: np.ndarray
+    rss: np.ndarray
+    monte_carlo: np.ndarray
+    samples: int
+
+    @property
+    def coverage(self) -> float:
+        """Two-sided coverage of the Monte Carlo quantile, erf(k/√2)."""
+        return math.erf(self.coverage_factor / math.sqrt(2.0))
+
+    def total(self, method: str) -> np.ndarray:
+        """The sum by ``method`` (one of :data:`METHODS`) at each temperature (output unit)."""
+        if method not in METHODS:
+            raise DesignValueError("accuracy.method", method, f"one of {', '.join(METHODS)}")
+        return {"worst_case": self.worst_case, "rss": self.rss, "monte_carlo": self.monte_carlo}[method]
+
+    def worst(self, method: str) -> tuple[float, float]:
+        """(largest sum by ``method``, the temperature where it occurs) (output unit, degC)."""
+        tot = self.total(method)
+        i = int(np.argmax(tot))
+        return float(tot[i]), float(self.temperatures_degC[i])
+
+    def at(self, index: int) -> dict[str, float]:
+        """Each contribution's worst-case size (a or k·σ) at temperature ``index`` (output unit)."""
+        return {c.key: float(c.extreme(self.coverage_factor)[index]) for c in self.contributions}
+
+
+def budget(contributions, temperatures_degC, *, coverage_factor: float = 3.0, samples: int = 20000,
+           seed: int = 1) -> Budget:
+    """Sum the contributions worst case, RSS and by Monte Carlo at each temperature.
+
+    Parameters
+    ----------
+    contributions : sequence of Contribution
+        Sizes given at each of ``temperatures_degC`` (or one size for all).
+    temperatures_degC : array_like
+        Temperatures (degC).
+    coverage_factor : float
+        k > 0 (3 by default).
+    samples : int
+        Monte Carlo draws (>= 100).
+    seed : int
+        Seed of the draws.
+
+    Returns
+    -------
+    Budget
+    """
+    temps = np.atleast_1d(np.asarray(temperatures_degC, dtype=float))
+    k = float(coverage_factor)
+    if not (math.isfinite(k) and k > 0):
+        raise DesignValueError("accuracy.noise_coverage", coverage_factor, "> 0")
+    if int(samples) < 100:
+        raise DesignValueError("accuracy.monte_carlo_samples", samples, ">= 100")
+    parts = []
+    for c in contributions:
+        size = c.size
+        if size.size == 1:
+            size = np.full(temps.size, float(size[0]))
+        elif size.size != temps.size:
+            raise DesignValueError(f"Contribution({c.key}).size", size.size,
+                                   f"one value or {temps.size} (one per temperature)")
+        parts.append(replace(c, size=size))
+    n_t = temps.size
+    wc = np.zeros(n_t)
+    sq = np.zeros(n_t)
+    draws = _draws(tuple(c.shape for c in parts), int(samples), int(seed))
+    total = np.zeros((n_t, int(samples)))
+    for c, draw in zip(parts, draws):
+        ext = c.extreme(k)
+        wc += ext
+        sq += ext * ext
+        total += c.size[:, None] * draw[None, :]
+    p = math.erf(k / math.sqrt(2.0))
+    mc = _quantile_rows(np.abs(total, out=total), p) if parts else np.zeros(n_t)
+    return Budget(temperatures_degC=temps, contributions=tuple(parts), coverage_factor=k, worst_case=wc,
+                  rss=np.sqrt(sq), monte_carlo=np.asarray(mc, dtype=float), samples=int(samples))
+
+
+def _quantile_rows(values: np.ndarray, p: float) -> np.ndarray:
+    """Each row's quantile at ``p`` (linear interpolation, as numpy.quantile), by partial sorting."""
+    n = values.shape[1]
+    pos = p * (n - 1)
+    lo = int(np.floor(pos))
+    hi = min(lo + 1, n - 1)
+    part = np.partition(values, (lo, hi), axis=1)
+    return part[:, lo] + (pos - lo) * (part[:, hi] - part[:, lo])
+
+
+@lru_cache(maxsize=32)
+def _draws(shapes: tuple[str, ...], n: int, seed: int) -> tuple[np.ndarray, ...]:
+    """Unit draws for each shape in order, from one seeded generator (cached: re-sizing reuses them)."""
+    rng = np.random.default_rng(seed)
+    out = []
+    for shape in shapes:
+        draw = _draw(shape, rng, n)
+        draw.flags.writeable = False
+        out.append(draw)
+    return tuple(out)
+
+
+def _draw(shape: str, rng, n: int) -> np.ndarray:
+    """Unit draws of one shape: a sine at a random phase, uniform, ±1, or standard normal."""
+    if shape == "sine":
+        return np.sin(rng.uniform(0.0, 2 * np.pi, n))
+    if shape == "uniform":
+        return rng.uniform(-1.0, 1.0, n)
+    if shape == "two_point":
+        return rng.choice((-1.0, 1.0), n)
+    return rng.standard_normal(n)
+
+
+def largest_contribution(result: Budget, method: str) -> Contribution | None:
+    """The contribution with the largest worst-case size at the temperature where ``method`` is worst."""
+    if not result.contributions:
+        return None
+    i = int(np.argmax(result.total(method)))
+    sizes = result.at(i)
+    key = max(sizes, key=sizes.get)
+    return next(c for c in result.contributions if c.key == key)
+
+
+def scale_to_pass(result: Budget, key: str, method: str, target: float, *, samples: int | None = None,
+                  seed: int = 1) -> float | None:
+    """Largest factor on contribution ``key`` that brings ``method``'s sum to ``target`` or below.
+
+    Solved by bisection on the same :func:`budget` the check uses, so scaling
+    the contribution by the returned factor passes the check.
+
+    Returns
+    -------
+    float or None
+        Factor in [0, 1]; None when even removing the contribution does not pass.
+    """
+
+    def worst(factor: float) -> float:
+        parts = [replace(c, size=c.size * factor) if c.key == key else c for c in result.contributions]
+        b = budget(parts, result.temperatures_degC, coverage_factor=result.coverage_factor,
+                   samples=samples or result.samples, seed=seed)
+        return b.worst(method)[0]
+
+    if worst(0.0) > target:
+        return None
+    if worst(1.0) <= target:
+        return 1.0
+    lo, hi = 0.0, 1.0
+    for _ in range(40):
+        mid = 0.5 * (lo + hi)
+        if worst(mid) <= target:
+            lo = mid
+        else:
+            hi = mid
+    return lo
