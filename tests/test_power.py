@@ -292,9 +292,11 @@ def test_consumer_needs_the_main_states_and_knows_state_names():
 
 
 def test_consumer_defaults_follow_the_documented_rule():
+    # In fault the firmware stops polling and sleeps (docs/counter.md, section 7), so the
+    # fault state costs the sleep current unless a consumer says otherwise.
     c = Consumer("mcu", {"asleep": 1.0, "waking": 2.0, "polling": 3.0, "tracking": 4.0})
     assert c.current_in("fast_polling") == 3.0
-    assert c.current_in("fault") == 3.0
+    assert c.current_in("fault") == 1.0
     assert c.current_in("power_lost") == 0.0
 
 
