@@ -678,7 +678,8 @@ def _derating(battery, temperature_C, usable_fraction, temperature_factor,
               self_discharge_per_year):
     if not isinstance(battery, (Cell, Pack)):
         raise DesignValueError("battery", battery, "a turnkit.battery.Cell or Pack")
-    _check_fraction("usable_fraction", usable_fraction)
+    # 0 is allowed: a cell that browns out under its pulses from the start delivers nothing.
+    _check_fraction("usable_fraction", usable_fraction, allow_zero=True)
     if temperature_factor is None:
         tf = battery.temperature_factor(temperature_C)
     else:
@@ -980,8 +981,10 @@ class SiteDerating:
     self_discharge_per_year : float
         Table value times that factor, fraction of the nominal capacity per year.
     shelf_life_years : float
-        The chemistry's 20 °C shelf life divided by the same factor (the
-        storage losses that set it speed up alike; derived, docs/power.md).
+        The chemistry's 20 °C shelf life divided by the same factor when it
+        exceeds 1 (the storage losses that set it speed up alike; derived,
+        docs/power.md); never longer than the 20 °C figure, which is all the
+        data support.
     activation_eV : float
         Activation energy used, eV.
     """
@@ -1040,7 +1043,7 @@ def site_derating(battery: Cell | Pack, temperature_C: float = REFERENCE_TEMPERA
         coldest_C=cold, hottest_C=hot, mean_C=float(temps.mean()), temperature_factor=tf,
         self_discharge_factor=factor,
         self_discharge_per_year=battery.self_discharge_per_year * factor,
-        shelf_life_years=battery.shelf_life_years / factor, activation_eV=ea)
+        shelf_life_years=battery.shelf_life_years / max(factor, 1.0), activation_eV=ea)
 
 
 # ---------------------------------------------------------------- discharge curve and pulses
