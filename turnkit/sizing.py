@@ -818,7 +818,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     electronics = profile
     profile, moves, move_values = _moves_stage(design, train, profile)
     values.extend(move_values)
-    warns.extend(_move_warnings(moves))
+    warns.extend(_move_warnings(moves, design.power))
     motion_events = sum(sc.bursts_per_day or 0.0 for sc in design.motion if sc.kind == "bursts")
     motion_fraction = 0.0
     for sc in design.motion:
@@ -1039,6 +1039,9 @@ def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
         if design.requirements.battery_life_years is not None:
             hlines = (Series("required life", np.array([lo_s * 1e3, hi_s * 1e3]),
                              np.full(2, design.requirements.battery_life_years), style="dashed"),)
+        # The charge life cannot outlast the shelf life at the site: the life check uses the lower.
+        hlines = hlines + (Series("shelf life at the site", np.array([lo_s * 1e3, hi_s * 1e3]),
+                                  np.full(2, lc.shelf_life_years), style="dashed"),)
         series = series + hlines
     else:
         periods = np.geomspace(lo_s, hi_s, 120)
@@ -1208,12 +1211,21 @@ def _moves_stage(design: ActuatorDesign, train, profile) -> tuple:
     return profile, moves, values
 
 
-def _move_warnings(moves) -> list[str]:
+def _move_warnings(moves, p=None) -> list[str]:
+    out = []
     if moves is not None and moves.motor_efficiency > 1.0:
-        return [f"The motor current given ({moves.motor_current_mA:.4g} mA) carries less energy than the load "
-                f"needs at the motor shaft ({moves.motor_work_per_move_J:.4g} J a move against "
-                f"{moves.electrical_energy_per_move_J:.4g} J drawn): check the current, the load or the motor speed."]
-    return []
+        out.append(f"The motor current ({moves.motor_current_mA:.4g} mA) carries less energy than the load "
+                   f"needs at the motor shaft ({moves.motor_work_per_move_J:.4g} J a move against "
+                   f"{moves.electrical_energy_per_move_J:.4g} J drawn): check the current, the load or the motor "
+                   "speed.")
+    if moves is not None and p is not None and p.motor_torque_constant_N_m_per_A is not None:
+        # In SI units the back-EMF constant equals the torque constant (V per rad/s = N*m/A).
+        emf = p.motor_torque_constant_N_m_per_A * p.motor_speed_rpm * math.pi / 30.0
+        supply = moves.electrical_energy_per_move_J / moves.charge_per_move_C if moves.charge_per_move_C else 0.0
+        if emf >= supply:
+            out.append(f"At {p.motor_speed_rpm:g} rpm the motor's back-EMF (k_t * speed = {emf:.3g} V) reaches the "
+                       f"{supply:.3g} V supply: it cannot run that fast; check the motor speed or constants.")
+    return out
 
 
 @dataclass(frozen=True)

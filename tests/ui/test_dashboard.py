@@ -483,7 +483,7 @@ def test_demo_dashboard_follows_the_poll_period_slider(demo):
     assert dash.error == ""
     assert not np.allclose(np.array(fig.markers.data["x"], dtype=float), marker_before)
     assert dash.readouts["life"].value != readout_before
-    assert dash.result.value("battery_life_years").formatted() in dash.readouts["life"].value
+    assert dash.result.value("service_life_years").formatted() in dash.readouts["life"].value
 
 
 @pytest.mark.parametrize("demo", ["irrigation-gate-valve"], indirect=True)
@@ -511,7 +511,7 @@ def test_demo_battery_choice_is_a_drop_down_that_changes_the_life(demo):
     assert demo.error == ""
     assert demo.design.battery.chemistry == "li_socl2_aa"
     assert demo.result.value("battery_life_years").value > life_before
-    assert demo.result.value("battery_life_years").formatted() in demo.readouts["life"].value
+    assert demo.result.value("service_life_years").formatted() in demo.readouts["life"].value
 
 
 @pytest.mark.parametrize("demo", ["camera-crane-joint"], indirect=True)
