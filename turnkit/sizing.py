@@ -1317,20 +1317,20 @@ def _energy_stage(design: ActuatorDesign, pack, profile_electronics, schedule, m
     else:
         depth, where = 0.0, "on a fresh battery"
     v_open = float(batt.open_circuit_voltage_V(pack, depth))
+    loaded = v_open - sags[worst]
+    values.append(Value("min_supply_under_pulse_V", f"Lowest supply voltage under a pulse {where}",
+                        loaded, "V", "battery", note=f"cut-off {cutoff:g} V at {site.coldest_C:g} degC"))
     if v_open > cutoff:
-        loaded = v_open - sags[worst]
         need = max(float(batt.buffer_capacitance_needed_uF(i, t, v_open - cutoff)) for _, i, t in pulses)
-        values.append(Value("min_supply_under_pulse_V", f"Lowest supply voltage under a pulse {where}",
-                            loaded, "V", "battery", note=f"cut-off {cutoff:g} V at {site.coldest_C:g} degC"))
         advice = (f"a buffer capacitor of at least {_capacitance_text(need)} across the battery "
                   "(C >= I*t/dV for the largest pulse"
                   + ("; at this size a supercapacitor, whose leakage adds to the sleep current: give "
                      "buffer_leakage" if need >= 1e5 else "") + "), or cells with less internal resistance")
-        checks.append(_check("brown_out", f"Supply stays above the cut-off under the largest pulse {where}",
-                             loaded, cutoff, "V", ">=", advice=advice))
     else:
-        warnings.append(f"The battery is below the {cutoff:g} V cut-off {where} even without load: see the "
-                        "battery-life check.")
+        advice = (f"the battery is below the {cutoff:g} V cut-off {where} even without load, so no capacitor "
+                  "helps: a larger battery or a lower average current (see the battery-life check)")
+    checks.append(_check("brown_out", f"Supply stays above the cut-off under the largest pulse {where}",
+                         loaded, cutoff, "V", ">=", advice=advice))
     assumptions = [(f"The count is lost when the supply under the largest pulse ({pulses[worst][0]}, "
                     f"{pulses[worst][1]:.4g} mA) at {site.coldest_C:g} degC falls to the {cutoff:g} V cut-off: usable "
                     f"share {100 * usable:.3g} % of the rated capacity, from the cell's discharge curve and internal "
