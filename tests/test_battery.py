@@ -478,3 +478,11 @@ def test_capacitor_sized_by_charge_keeps_the_drop_within_the_limit(i_mA, t_s, dv
     # The advice C >= I*t/dV always passes the sag check it is meant to fix.
     c_uF = buffer_capacitance_needed_uF(i_mA, t_s, dv)
     assert pulse_sag_V(i_mA, t_s, r, c_uF) <= dv * (1 + 1e-9)
+
+
+def test_pulse_sag_is_vectorised_and_agrees_with_scalar_calls():
+    i = np.array([1.0, 10.0, 100.0])
+    t = np.array([1e-3, 0.02, 5.0])
+    out = pulse_sag_V(i, t, 2.0, np.array([0.0, 470.0, 1e6]))
+    assert out == pytest.approx([pulse_sag_V(float(a), float(b), 2.0, float(c))
+                                 for a, b, c in zip(i, t, [0.0, 470.0, 1e6])])

@@ -1110,6 +1110,11 @@ def pulse_sag_V(current_mA, duration_s, resistance_ohm, buffer_uF=0.0):
     ----------
     First-order RC step response (derived, shown in docs/power.md).
     """
+    if all(isinstance(x, (int, float)) for x in (current_mA, duration_s, resistance_ohm, buffer_uF)):
+        # Scalars (sizing): the same formula without array overhead.
+        tau = resistance_ohm * buffer_uF * 1e-6
+        frac = -math.expm1(-duration_s / tau) if tau > 0 else 1.0
+        return current_mA * 1e-3 * resistance_ohm * frac
     i = np.asarray(current_mA, dtype=float) * 1e-3
     t = np.asarray(duration_s, dtype=float)
     r = np.asarray(resistance_ohm, dtype=float)

@@ -1265,18 +1265,7 @@ def _energy_stage(design: ActuatorDesign, pack, profile_electronics, schedule, m
     buffer-capacitor advice, and the values, warnings and assumptions to show.
     """
     b, p = design.battery, design.power
-    try:
-        site = batt.site_derating(pack, temperature_C, temperature_min_C=b.temperature_min_degC,
-                                  temperature_max_C=b.temperature_max_degC)
-    except DesignValueError as exc:
-        raise _relabel(exc, "battery") from None
-    if site.self_discharge_per_year >= 1.0:
-        raise DesignValueError("battery.temperature", site.hottest_C, "a cooler site",
-                               unit="degC", hint=f"self-discharge there is {site.self_discharge_per_year:.3g} "
-                                                 "of the capacity a year")
-    cell = replace(pack.cell, temperature_curve=((-273.0, site.temperature_factor), (1000.0, site.temperature_factor)),
-                   self_discharge_per_year=site.self_discharge_per_year, shelf_life_years=site.shelf_life_years)
-    derated = batt.Pack(cell, series=pack.series, parallel=pack.parallel)
+    site, derated = _site_pack(pack, temperature_C, b.temperature_min_degC, b.temperature_max_degC)
     cutoff = p.cutoff_voltage_V if p.cutoff_voltage_V is not None else pack.cutoff_voltage_V
     if cutoff >= pack.nominal_voltage_V:
         raise DesignValueError("power.cutoff_voltage", cutoff,
@@ -1356,6 +1345,23 @@ def _energy_stage(design: ActuatorDesign, pack, profile_electronics, schedule, m
                         "re-home promptly.")
     return _EnergyReport(derated, usable, tuple(values), tuple(checks), tuple(warnings), tuple(assumptions),
                          site.shelf_life_years)
+
+
+@lru_cache(maxsize=64)
+def _site_pack(pack, temperature_C: float, temperature_min_C, temperature_max_C):
+    """The site derating and the pack derated for it (cached: slider moves rarely change either)."""
+    try:
+        site = batt.site_derating(pack, temperature_C, temperature_min_C=temperature_min_C,
+                                  temperature_max_C=temperature_max_C)
+    except DesignValueError as exc:
+        raise _relabel(exc, "battery") from None
+    if site.self_discharge_per_year >= 1.0:
+        raise DesignValueError("battery.temperature", site.hottest_C, "a cooler site",
+                               unit="degC", hint=f"self-discharge there is {site.self_discharge_per_year:.3g} "
+                                                 "of the capacity a year")
+    cell = replace(pack.cell, temperature_curve=((-273.0, site.temperature_factor), (1000.0, site.temperature_factor)),
+                   self_discharge_per_year=site.self_discharge_per_year, shelf_life_years=site.shelf_life_years)
+    return site, batt.Pack(cell, series=pack.series, parallel=pack.parallel)
 
 
 def _capacitance_text(uF: float) -> str:
