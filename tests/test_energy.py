@@ -227,3 +227,50 @@ def test_summary_shows_the_source_beside_the_cell_used():
     assert "from memory" in r.value("battery_capacity_mAh").note or "common practice" in \
         r.value("battery_capacity_mAh").note
     assert any("discharge curve" in a[0] and "from memory" in a[1] for a in r.assumptions)
+
+
+# ---------------------------------------------------------------- primary cell plus buffer capacitor
+
+
+def test_supercapacitor_buffer_carries_the_motor_and_its_leakage_is_billed():
+    plain = size(_coin_with_motor(), curves=False)
+    buffered = size(_coin_with_motor('buffer_capacitance = "1000000 uF"\nbuffer_leakage = "2 uA"\n'), curves=False)
+    # The leakage is a consumer drawing all the time: exactly 2 uA more on average.
+    assert _value(buffered, "average_current_uA") == pytest.approx(_value(plain, "average_current_uA") + 2.0)
+    # A 1 F capacitor across a 15-ohm coin cell (tau = 15 s) takes most of the motor's pulses.
+    assert _value(buffered, "largest_pulse_sag_V") < _value(plain, "largest_pulse_sag_V")
+    assert buffered.check("brown_out").passed
+
+
+def test_new_keys_round_trip_through_the_design_file():
+    from turnkit.designfile import design_schema, dump_design
+
+    d = _coin_with_motor('buffer_capacitance = "470 uF"\nbuffer_leakage = "0.1 uA"\n')
+    d = replace(d, battery=replace(d.battery, temperature_min_degC=-5.0, temperature_max_degC=35.0),
+                power=replace(d.power, consumers=(replace(d.power.consumers[0], fault_uA=40.0),)))
+    assert loads_design(dump_design(d)) == d
+    props = design_schema()["properties"]["power"]["properties"]
+    assert {"moves_per_day", "move_load", "motor_torque_constant", "buffer_capacitance"} <= set(props)
+
+
+def test_torque_load_on_a_rotary_output_and_a_wrong_unit_is_named():
+    rotary = BASE.replace('[[gear_train]]\nkind = "lead_screw"\npitch = "2 mm"\nlength = "150 mm"\n', "") \
+        .replace('stroke = "100 mm"', 'stroke = "720 deg"')
+    extra = 'moves_per_day = 2\nmove_load = "0.5 N*m"\nmotor_speed = "1200 rpm"\nmotor_current = "90 mA"\n'
+    r = size(_design(extra, text=rotary), curves=False)
+    # 0.5 N*m over two output turns is 2 pi J at the output; 6 motor turns at 1200 rpm take 0.3 s.
+    assert _value(r, "time_per_move_s") == pytest.approx(0.3)
+    with pytest.raises(DesignFileError, match=r"power.move_load: '5 kg' is of dimension \[mass\]"):
+        _design(extra.replace('"0.5 N*m"', '"5 kg"'), text=rotary)
+
+
+@pytest.mark.parametrize("extra, key", [
+    ('temperature_min = "-58 degC"\ntemperature_max = "20 degC"', "battery.temperature_min"),
+    ('temperature_min = "-10 degC"\ntemperature_max = "95 degC"', "battery.temperature_max"),
+    ('temperature = "90 degC"', "battery.temperature"),
+])
+def test_site_temperature_outside_the_cells_range_names_the_key_written(extra, key):
+    text = BASE.replace('chemistry = "li_socl2_d"', 'chemistry = "li_socl2_d"\n' + extra)
+    with pytest.raises(DesignValueError) as info:
+        size(loads_design(text), curves=False)
+    assert info.value.field == key and "operating range" in str(info.value)

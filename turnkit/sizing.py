@@ -1265,7 +1265,19 @@ def _energy_stage(design: ActuatorDesign, pack, profile_electronics, schedule, m
     buffer-capacitor advice, and the values, warnings and assumptions to show.
     """
     b, p = design.battery, design.power
-    site, derated = _site_pack(pack, temperature_C, b.temperature_min_degC, b.temperature_max_degC)
+    try:
+        site, derated = _site_pack(pack, temperature_C, b.temperature_min_degC, b.temperature_max_degC)
+    except DesignValueError as exc:
+        if not exc.field.endswith("temperature_C"):
+            raise
+        # Name the key the user wrote: an end of the site's range, or the one site temperature.
+        if b.temperature_min_degC is not None:
+            key = "battery.temperature_min" if exc.value == b.temperature_min_degC else "battery.temperature_max"
+        elif design.requirements.service_temperature_degC is not None:
+            key = "requirements.service_temperature"
+        else:
+            key = "battery.temperature"
+        raise DesignValueError(key, exc.value, exc.allowed, unit="degC", hint=exc.hint) from None
     cutoff = p.cutoff_voltage_V if p.cutoff_voltage_V is not None else pack.cutoff_voltage_V
     if cutoff >= pack.nominal_voltage_V:
         raise DesignValueError("power.cutoff_voltage", cutoff,
