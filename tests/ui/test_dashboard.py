@@ -546,3 +546,20 @@ def test_demo_save_and_export_round_trip(tmp_path):
         assert f"window-shade-winder-summary.{suffix}" in dash.files.value
     data = json.loads((tmp_path / "window-shade-winder-summary.json").read_text())
     assert json.dumps(data).count(dash.result.design_name) >= 1
+
+
+@pytest.mark.parametrize("demo", ["irrigation-gate-valve"], indirect=True)
+def test_demo_moves_load_and_cold_move_the_life_and_its_checks(demo):
+    # The gate valve passes with little to spare: daily moves, a heavier gate or a colder site fail.
+    assert demo.result.check("battery_life").passed and demo.result.check("brown_out").passed
+    life_before = demo.readouts["life"].value
+    for key, value, fails in (("power.moves_per_day", 1.0, "battery_life"),
+                              ("power.move_load_N", 80.0, "brown_out"),
+                              ("battery.temperature_min_degC", -25.0, "brown_out")):
+        demo.reset()
+        demo.set(**{key: value})
+        assert demo.error == ""
+        assert demo.readouts["life"].value != life_before
+        assert not demo.result.check(fails).passed
+        row = demo.requirements.value.split(f"data-key='{fails}'")[1].split("</tr>")[0]
+        assert "FAIL" in row
