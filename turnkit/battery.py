@@ -108,8 +108,9 @@ _SRC_NOMINAL = (
     "battery association summary); Linden's Handbook of Batteries, Table 4.3"
 )
 _SRC_CAPACITY = (
-    "(common practice) typical makers' figures at low drain, 20 °C, to the "
-    "stated cut-off; range as summarised by encyclopedic sources"
+    "(from memory: typical makers' figures at low drain, 20 °C, to the stated "
+    "cut-off, inside the ranges encyclopedic summaries of makers' data give; no "
+    "data sheet or handbook table was at hand to check the figure itself)"
 )
 _SRC_CAPACITY_MEMORY = (
     "(from memory: typical makers' data at low drain, 20 °C; no data sheet or "
