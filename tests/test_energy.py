@@ -73,6 +73,8 @@ def test_moves_enter_the_average_current_with_the_motor_shown_in_the_breakdown()
     assert _value(moving, "average_current_uA") == pytest.approx(
         _value(still, "average_current_uA") + 0.4 / 24 * 1e3 + tracking_extra, rel=1e-9)
     assert _value(moving, "battery_life_years") < _value(still, "battery_life_years")
+    assert "motor 16.7 uA" in _value(moving, "current_by_consumer")
+    assert "tracking" in _value(moving, "current_by_state") and "tracking" not in _value(still, "current_by_state")
 
 
 def test_tracking_current_now_costs_charge_when_the_motor_moves():

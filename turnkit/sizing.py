@@ -843,6 +843,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     add("dominant_consumer", "Largest consumer", budget.dominant_consumer, "", "power",
         note=f"{budget.by_consumer()[budget.dominant_consumer]:.3g} uA of the average")
     add("dominant_state", "State that costs the most charge", budget.dominant_state, "", "power")
+    values.extend(_breakdown_values(budget))
     if motion_events:
         assumptions.append((f"Back-drive bursts: {motion_events:g} a day (from the motion scenarios) in the "
                             "average current", "design file"))
@@ -1209,6 +1210,16 @@ def _moves_stage(design: ActuatorDesign, train, profile) -> tuple:
     if extra:
         profile = power.CurrentProfile(profile.consumers + tuple(extra), profile.supply_voltage_V)
     return profile, moves, values
+
+
+def _breakdown_values(budget) -> list[Value]:
+    """Where the average current goes, by consumer (the motor among them) and by state."""
+    total = budget.average_current_uA or 1.0
+    by_consumer = "; ".join(f"{n} {v:.3g} uA ({100 * v / total:.3g} %)" for n, v in budget.by_consumer().items())
+    by_state = "; ".join(f"{n} {v:.3g} uA" for n, v in budget.by_state().items() if v > 0)
+    return [Value("current_by_consumer", "Average current by consumer", by_consumer, "", "power"),
+            Value("current_by_state", "Average current by counter state", by_state, "", "power",
+                  note="tracking: while the motor is driven; fault and power lost are not in the daily budget")]
 
 
 def _move_warnings(moves, p=None) -> list[str]:
