@@ -74,7 +74,8 @@ def test_nominal_voltages_follow_the_system_letters():
 
 @pytest.mark.parametrize("key, low, high", [
     # Typical capacities (from memory: makers' low-drain figures as summarised in encyclopedic
-    # articles; not checked against a data sheet): LR6 2.0-3.0 Ah, CR2032 220-235 mAh, CR17345 (123 size) 1.3-1.55 Ah, ER14505 2.4-2.7 Ah.
+    # articles; not checked against a data sheet): LR6 2.0-3.0 Ah, CR2032 220-235 mAh,
+    # CR17345 (123 size) 1.3-1.55 Ah, ER14505 2.4-2.7 Ah.
     ("alkaline_aa", 2000.0, 3000.0),
     ("li_mno2_2032", 220.0, 235.0),
     ("li_mno2_123", 1300.0, 1550.0),
@@ -86,7 +87,8 @@ def test_typical_capacities_sit_inside_published_ranges(key, low, high):
 
 def test_self_discharge_sits_inside_published_ranges():
     # Source: encyclopedia article "Self-discharge", citing Garche et al., Encyclopedia of
-    # Electrochemical Power Sources (2013) (common practice): alkaline 2-3 %/yr, Li-MnO2 1-2 %/yr, Li-SOCl2 about 1 %/yr or less.
+    # Electrochemical Power Sources (2013) (common practice): alkaline 2-3 %/yr,
+    # Li-MnO2 1-2 %/yr, Li-SOCl2 about 1 %/yr or less.
     assert 0.02 <= cell("alkaline_aa").self_discharge_per_year <= 0.03
     assert 0.01 <= cell("li_mno2_2032").self_discharge_per_year <= 0.02
     assert cell("li_socl2_aa").self_discharge_per_year <= 0.01

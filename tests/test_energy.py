@@ -190,7 +190,8 @@ def test_flat_plateau_cut_off_keeps_most_of_the_capacity():
 
 def _coin_with_motor(extra: str = ""):
     coin = BASE.replace('chemistry = "li_socl2_d"', 'chemistry = "li_mno2_2032"').replace('"10 years"', '"1 years"')
-    coin = coin.replace('asleep = "2 uA"', 'asleep = "0.5 uA"').replace('poll_period = "20 ms"', 'poll_period = "200 ms"')
+    coin = coin.replace('asleep = "2 uA"', 'asleep = "0.5 uA"')
+    coin = coin.replace('poll_period = "20 ms"', 'poll_period = "200 ms"')
     moves = ('cutoff_voltage = "2.5 V"\nmoves_per_day = 1\nmove_stroke = "2 mm"\nmotor_speed = "3000 rpm"\n'
              'motor_current = "8 mA"\nmotor_start_current = "40 mA"\nmotor_start_time = "5 ms"\n')
     return _design(moves + extra, text=coin)

@@ -904,8 +904,8 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
                     max_sleep = sleep_now + (allowed_uA - budget.average_current_uA) / asleep_share
                     add("max_sleep_current_uA", "Largest total sleep current that lasts the required life",
                         max_sleep, "uA", "battery", equation="battery_life",
-                        note=("negative: even zero sleep current cannot make the life; the wake-ups and moves alone cost "
-                              "too much") if max_sleep < 0 else f"now {sleep_now:.3g} uA")
+                        note=("negative: even zero sleep current cannot make the life; the wake-ups and moves "
+                              "alone cost too much") if max_sleep < 0 else f"now {sleep_now:.3g} uA")
             except DesignValueError:
                 advice = (f"this chemistry cannot last {req.battery_life_years:g} years against its own "
                           "self-discharge: choose another chemistry")
