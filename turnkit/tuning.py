@@ -243,7 +243,8 @@ def tunables_for(design: ActuatorDesign) -> tuple[Tunable, ...]:
 
 
 def _energy_tunables(design: ActuatorDesign) -> list[Tunable]:
-    """Driven moves per day, the load, and the site temperature (coldest, when a range is given)."""
+    """Driven moves per day, the load, the motor's start current, and the site temperature
+    (the coldest, when a range is given)."""
     out = []
     p = design.power
     if p.moves_per_day:
@@ -258,6 +259,11 @@ def _energy_tunables(design: ActuatorDesign) -> list[Tunable]:
                 out.append(Tunable(f"power.{attr}", f"Load at the output while driving ({unit_})", unit_, lo, hi,
                                    True, value / 1000.0, (lambda d, a=attr: getattr(d.power, a)),
                                    _section_setter("power", attr), group="power"))
+        if p.motor_start_current_mA:
+            lo, hi = _span(p.motor_start_current_mA, 0.05, 20.0, 0.1, 1e6)
+            out.append(Tunable("power.motor_start_current_mA", "Motor start current (mA)", "mA", lo, hi, True,
+                               0.1, lambda d: d.power.motor_start_current_mA,
+                               _section_setter("power", "motor_start_current_mA"), group="power"))
     b = design.battery
     if b is not None:
         attr = "temperature_degC" if b.temperature_min_degC is None else "temperature_min_degC"

@@ -555,6 +555,7 @@ def test_demo_moves_load_and_cold_move_the_life_and_its_checks(demo):
     life_before = demo.readouts["life"].value
     for key, value, fails in (("power.moves_per_day", 1.0, "battery_life"),
                               ("power.move_load_N", 80.0, "brown_out"),
+                              ("power.motor_start_current_mA", 3000.0, "brown_out"),
                               ("battery.temperature_min_degC", -25.0, "brown_out")):
         demo.reset()
         demo.set(**{key: value})
