@@ -47,7 +47,7 @@ def _edit(old: str, new: str) -> str:
     ('poll_period = "20 ms"', 'poll_period = "ms"', "it must start with a number"),
     ('poll_period = "20 ms"', 'poll_period = "9**9**9 ms"', "arithmetic"),
     ('poll_period = "20 ms"', 'poll_period = "2**2**2**2**2 ms"', "arithmetic"),
-    ('temperature = "5 degC"', 'temperature = "25 delta_degC"', "write the temperature itself"),
+    ('temperature_min = "-10 degC"', 'temperature_min = "25 delta_degC"', "write the temperature itself"),
     ('bursts_per_day = 0.2', 'bursts_per_day = 1e6', "motion[1].duration must be short enough to simulate"),
     ('trace = "traces/gate-handwheel.csv"', 'trace = "/proc/self/environ"', "outside the design file's folder"),
     ('kind = "external"', 'kind = []', "gear_train[0].kind: [] is not a stage kind"),

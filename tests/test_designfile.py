@@ -210,9 +210,10 @@ STAGE = BASE + "[[gear_train]]\n"
          "speed in mm/s"),
         (BASE + '[requirements]\nbattery_life = "5 mm"\n',
          "v.toml: requirements.battery_life: '5 mm' is a length; expected a time in years"),
+        (BASE + '[sensor]\namplitude = "2 kg"\n',
+         "v.toml: sensor.amplitude: '2 kg' is of dimension [mass]; expected a voltage in mV"),
         (BASE + '[sensor]\namplitude = "2 N"\n',
-         "v.toml: sensor.amplitude: '2 N' is of dimension [mass] * [length] / [time] ** 2; expected a "
-         "voltage in mV"),
+         "v.toml: sensor.amplitude: '2 N' is a force; expected a voltage in mV"),
         # missing units, unreadable quantities
         (STAGE + 'kind = "lead_screw"\npitch = 2\n',
          "v.toml: gear_train[0].pitch: 2 has no unit; expected a length in mm, written with its unit such as "

@@ -292,9 +292,11 @@ def test_consumer_needs_the_main_states_and_knows_state_names():
 
 
 def test_consumer_defaults_follow_the_documented_rule():
+    # In fault the firmware stops polling and sleeps (docs/counter.md, section 7), so the
+    # fault state costs the sleep current unless a consumer says otherwise.
     c = Consumer("mcu", {"asleep": 1.0, "waking": 2.0, "polling": 3.0, "tracking": 4.0})
     assert c.current_in("fast_polling") == 3.0
-    assert c.current_in("fault") == 3.0
+    assert c.current_in("fault") == 1.0
     assert c.current_in("power_lost") == 0.0
 
 
@@ -559,3 +561,108 @@ def test_budget_from_a_real_counter_simulation_matches_the_analytic_schedule():
     assert result.wake_count == 144_000
     assert exact.average_current_uA == pytest.approx(analytic.average_current_uA, rel=1e-9)
     assert exact.by_consumer() == pytest.approx(analytic.by_consumer(), rel=1e-9)
+
+
+# ---------------------------------------------------------------- driven moves and fault
+
+
+from turnkit.power import move_energy, time_to_flat_days  # noqa: E402
+
+
+def test_move_energy_hand_calculation_with_motor_constants():
+    # Hand calculation (derived, shown in docs/power.md): 200 N over 100 mm is 20 J at the
+    # output, 50 J at the motor through a 40 % train; 1200 motor turns at 3000 rpm take 24 s;
+    # T = 50 J / (2 pi 1200) = 6.631 mN*m; I = 50 mA + T / (0.01 N*m/A) = 713.1 mA; Q = I * 24 s.
+    m = move_energy(moves_per_day=4, motor_turns_per_move=1200.0, output_work_per_move_J=20.0,
+                    gear_efficiency=0.4, motor_speed_rpm=3000.0, supply_voltage_V=3.0,
+                    torque_constant_Nm_per_A=0.01, no_load_current_mA=50.0)
+    torque = 50.0 / (2 * np.pi * 1200.0)
+    assert m.time_per_move_s == pytest.approx(24.0)
+    assert m.motor_torque_Nm == pytest.approx(torque)
+    assert m.motor_current_mA == pytest.approx(50.0 + torque / 0.01 * 1e3)
+    assert m.charge_per_move_C == pytest.approx(m.motor_current_mA * 1e-3 * 24.0)
+    assert m.tracking_fraction == pytest.approx(4 * 24.0 / 86400.0)
+
+
+def test_move_charge_per_day_agrees_with_pint():
+    # Source: pint unit conversion (independent reference library).
+    ureg = registry()
+    m = move_energy(moves_per_day=6, motor_turns_per_move=500.0, output_work_per_move_J=3.0,
+                    gear_efficiency=0.5, motor_speed_rpm=1500.0, supply_voltage_V=3.6,
+                    motor_current_mA=180.0)
+    t = (500 * ureg.turn / (1500 * ureg.rpm)).to("s")
+    q_day = (180 * ureg.mA * t * 6).to("mA*h")
+    assert m.charge_per_day_mAh == pytest.approx(q_day.magnitude, rel=1e-12)
+    assert m.electrical_energy_per_move_J == pytest.approx((180 * ureg.mA * t * 3.6 * ureg.V).to("J").magnitude)
+    assert m.motor_efficiency == pytest.approx(6.0 / m.electrical_energy_per_move_J)
+
+
+def test_more_moves_or_more_load_never_lower_the_average_current():
+    p = _three_loads()
+    base = None
+    for n, load in ((0.5, 1.0), (2.0, 1.0), (2.0, 4.0), (8.0, 4.0)):
+        m = move_energy(moves_per_day=n, motor_turns_per_move=300.0, output_work_per_move_J=load,
+                        gear_efficiency=0.6, motor_speed_rpm=2000.0, supply_voltage_V=3.0,
+                        torque_constant_Nm_per_A=0.005, no_load_current_mA=20.0)
+        prof = CurrentProfile(p.consumers + (m.consumer(),), 3.0)
+        i = budget_from_schedule(prof, **_SCHEDULE, tracking_fraction=m.tracking_fraction).average_current_uA
+        assert base is None or i > base
+        base = i
+
+
+def test_motor_charge_is_conserved_against_the_simulation_exact_budget():
+    # Charge conservation: a day with six driven moves simulated through the counter and
+    # schedule gives exact state times; the motor's charge in that budget must equal six
+    # moves' charge, and the analytic budget (tracking share from the move time) must agree
+    # with the exact one to within the polls that the move boundaries round off.
+    from turnkit.motion import CombinedMotion, ConstantSpeed
+    from turnkit.schedule import FixedSchedule
+    from turnkit.simulation import simulate
+
+    rpm, turns, n = 600.0, 300.0, 6
+    m = move_energy(moves_per_day=n, motor_turns_per_move=turns, output_work_per_move_J=2.0,
+                    gear_efficiency=0.5, motor_speed_rpm=rpm, supply_voltage_V=3.0, motor_current_mA=120.0)
+    moves = CombinedMotion(tuple(ConstantSpeed(rpm, start_s=3600.0 * (1 + 3 * k), duration_s=m.time_per_move_s,
+                                               driven=True) for k in range(n)))
+    sched = FixedSchedule(poll_period_s=_SCHEDULE["poll_period_s"], wake_time_s=_SCHEDULE["wake_time_s"],
+                          settle_time_s=_SCHEDULE["settle_time_s"], poll_time_s=_SCHEDULE["poll_time_s"])
+    res = simulate(moves, sched, 86400.0)
+    assert res.state_time_s["tracking"] == pytest.approx(n * m.time_per_move_s, rel=1e-9)
+    prof = CurrentProfile(_three_loads().consumers + (m.consumer(),), 3.0)
+    exact = budget_from_simulation(prof, res)
+    motor_C = exact.by_consumer()["motor"] * 1e-6 * 86400.0
+    assert motor_C == pytest.approx(n * m.charge_per_move_C, rel=1e-9)
+    # The parts add up to the whole, by consumer and by state.
+    assert sum(exact.current_by_consumer_uA) == pytest.approx(exact.average_current_uA, rel=1e-12)
+    assert sum(exact.current_by_state_uA) == pytest.approx(exact.average_current_uA, rel=1e-12)
+    analytic = budget_from_schedule(prof, **_SCHEDULE, tracking_fraction=m.tracking_fraction)
+    one_poll_uA = (exact.charge_per_wake_uC) / 86400.0
+    assert abs(analytic.average_current_uA - exact.average_current_uA) <= 2 * n * one_poll_uA + 1e-9
+    assert analytic.by_consumer()["motor"] == pytest.approx(exact.by_consumer()["motor"], rel=1e-9)
+
+
+def test_a_day_in_fault_costs_the_sleep_current_not_the_poll_current():
+    # The firmware stops polling in fault (docs/counter.md): a whole day in fault averages the
+    # sleep current, where billing it at the polling current gave milliamps.
+    p = CurrentProfile((Consumer.sleep_and_awake("node", 1.5, 3900.0),), 3.0)
+    day = budget_from_state_times(p, {"fault": 86400.0}, 86400.0, 0)
+    assert day.average_current_uA == pytest.approx(1.5)
+    awake = CurrentProfile((Consumer("node", {"asleep": 1.5, "waking": 3900.0, "polling": 3900.0,
+                                              "tracking": 3900.0, "fault": 3900.0}),), 3.0)
+    assert budget_from_state_times(awake, {"fault": 86400.0}, 86400.0, 0).average_current_uA == 3900.0
+
+
+def test_time_to_flat_hand_calculation():
+    # 1000 mAh at 3.9 mA is 256.4 days; with 36.525 mAh/year self-discharge 0.1 mAh/day more.
+    assert time_to_flat_days(1000.0, 3900.0) == pytest.approx(1000.0 / (3.9 * 24.0))
+    assert time_to_flat_days(1000.0, 3900.0, 36.525) == pytest.approx(1000.0 / (3.9 * 24.0 + 0.1))
+    assert time_to_flat_days(1000.0, 0.0) == np.inf
+
+
+def test_moves_that_do_not_fit_in_a_day_are_refused_with_the_move_time():
+    with pytest.raises(DesignValueError, match="each move takes 60 s"):
+        move_energy(moves_per_day=2000, motor_turns_per_move=60.0, output_work_per_move_J=0.0,
+                    gear_efficiency=1.0, motor_speed_rpm=60.0, supply_voltage_V=3.0, motor_current_mA=10.0)
+    with pytest.raises(DesignValueError, match="exactly one"):
+        move_energy(moves_per_day=1, motor_turns_per_move=60.0, output_work_per_move_J=0.0,
+                    gear_efficiency=1.0, motor_speed_rpm=60.0, supply_voltage_V=3.0)

@@ -109,7 +109,10 @@ def test_speed_bound_and_poll_period_agree_with_the_symbolic_model(small):
 def test_battery_life_agrees_with_the_symbolic_life_equation(small):
     result = size(small, curves=False)
     pack = batt.Pack(batt.cell("li_fes2_aa"), series=2)
-    life = eq.solve_for("L", C_nom=pack.capacity_mAh, k_T=1.0, u=1.0, s=pack.self_discharge_per_year,
+    # u: the share above the cut-off under the wake pulse's sag, from the discharge curve.
+    u = result.value("usable_fraction_percent").value / 100
+    assert 0.999 < u <= 1.0
+    life = eq.solve_for("L", C_nom=pack.capacity_mAh, k_T=1.0, u=u, s=pack.self_discharge_per_year,
                         I_avg=result.value("average_current_uA").value / 1e3)
     assert result.value("battery_life_years").value == pytest.approx(life, rel=1e-9)
 
@@ -144,7 +147,8 @@ def test_capacity_needed_lasts_exactly_the_required_life():
     again = size(bigger, base_dir=DEMO, curves=False)
     assert again.value("battery_life_years").value == pytest.approx(2.0, rel=1e-9)
     sym = eq.min_capacity_for_life_mAh(life_years=2.0, average_current_uA=result.value("average_current_uA").value,
-                                       self_discharge_per_year=batt.cell("li_mno2_2032").self_discharge_per_year)
+                                       self_discharge_per_year=batt.cell("li_mno2_2032").self_discharge_per_year,
+                                       usable_fraction=result.value("usable_fraction_percent").value / 100)
     assert sym.value == pytest.approx(need, rel=1e-9)
 
 
@@ -280,13 +284,17 @@ def test_planetary_ring_tunable_keeps_planets_meshing():
 
 
 def test_electronics_cutoff_above_the_rated_end_voltage_shortens_life(small):
-    # Two Li-FeS2 AA cells: nominal 3.0 V, rated end 1.8 V. A 2.4 V cut-off keeps half (linear stand-in).
+    # Two Li-FeS2 AA cells: rated end 1.8 V. A 2.8 V cut-off (1.4 V a cell) sits at the end of the
+    # plateau: the share is where the tabulated curve, less the wake pulse's sag, reaches it.
     base = size(small, curves=False)
-    cut = replace(small, power=replace(small.power, cutoff_voltage_V=2.4))
+    cut = replace(small, power=replace(small.power, cutoff_voltage_V=2.8))
     result = size(cut, curves=False)
-    assert result.value("usable_fraction_percent").value == pytest.approx(50.0)
     pack = batt.Pack(batt.cell("li_fes2_aa"), series=2)
-    expected = eq.solve_for("L", C_nom=pack.capacity_mAh, k_T=1.0, u=0.5, s=pack.self_discharge_per_year,
+    sag = result.value("largest_pulse_sag_V").value
+    u = batt.usable_fraction_under_pulse(pack, 2.8, sag)
+    assert result.value("usable_fraction_percent").value == pytest.approx(100 * u)
+    assert 0.8 < u < 0.9
+    expected = eq.solve_for("L", C_nom=pack.capacity_mAh, k_T=1.0, u=u, s=pack.self_discharge_per_year,
                             I_avg=result.value("average_current_uA").value / 1e3)
     assert result.value("battery_life_years").value == pytest.approx(expected, rel=1e-9)
     assert result.value("battery_life_years").value < base.value("battery_life_years").value
@@ -514,7 +522,8 @@ def test_inverse_values_agree_with_the_symbolic_solutions(small):
     pack = batt.Pack(batt.cell("li_fes2_aa"), series=2)
     sym = eq.max_sleep_current_for_life_uA(life_years=5.0, capacity_mAh=pack.capacity_mAh, awake_current_uA=1000.0,
                                            awake_time_s=170e-6, poll_period_s=0.020,
-                                           self_discharge_per_year=pack.self_discharge_per_year)
+                                           self_discharge_per_year=pack.self_discharge_per_year,
+                                           usable_fraction=result.value("usable_fraction_percent").value / 100)
     assert result.value("max_sleep_current_uA").value == pytest.approx(sym.value, rel=1e-9)
     # Sizing with exactly that sleep current lasts exactly the required life.
     consumer = replace(small.power.consumers[0], asleep_uA=result.value("max_sleep_current_uA").value)

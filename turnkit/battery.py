@@ -55,10 +55,32 @@ __all__ = [
     "life_years",
     "life_from_capacity_years",
     "capacity_needed_mAh",
+    "BOLTZMANN_EV_PER_K",
+    "ACTIVATION_ENERGY_EV",
+    "SiteDerating",
+    "self_discharge_factor",
+    "annual_temperatures_C",
+    "site_derating",
+    "open_circuit_voltage_V",
+    "internal_resistance_ohm",
+    "pulse_sag_V",
+    "usable_fraction_under_pulse",
+    "buffer_capacitance_needed_uF",
 ]
 
 #: Hours in a Julian year of 365.25 days.
 HOURS_PER_YEAR = 8766.0
+
+#: Boltzmann constant, eV/K (CODATA 2018, exact in the 2019 SI).
+BOLTZMANN_EV_PER_K = 8.617333262e-5
+
+#: Default activation energy of self-discharge, eV: the rate doubling for
+#: every +10 °C near room temperature (common practice), i.e.
+#: ``ln 2 * k_B / (1/293.15 K - 1/303.15 K)`` (derived, shown in docs/power.md).
+ACTIVATION_ENERGY_EV = 0.531
+
+#: Temperature at which the table's self-discharge is given, °C.
+REFERENCE_TEMPERATURE_C = 20.0
 
 COIN_CELL_CAUTION = (
     "Coin cell: keep new and used cells out of reach of children. A swallowed "
@@ -86,29 +108,89 @@ _SRC_NOMINAL = (
     "battery association summary); Linden's Handbook of Batteries, Table 4.3"
 )
 _SRC_CAPACITY = (
-    "(common practice) typical makers' figures at low drain, 20 °C, to the "
-    "stated cut-off; range as summarised by encyclopedic sources"
+    "(from memory: typical makers' figures at low drain, 20 °C, to the stated "
+    "cut-off, inside the ranges encyclopedic summaries of makers' data give; no "
+    "data sheet or handbook table was at hand to check the figure itself)"
 )
 _SRC_CAPACITY_MEMORY = (
-    "(common practice; from memory of typical makers' data at low drain, 20 °C)"
+    "(from memory: typical makers' data at low drain, 20 °C; no data sheet or "
+    "handbook table was at hand to check it)"
+)
+_SRC_CUTOFF = (
+    "(from memory: the end voltage makers rate capacity to for this system; "
+    "no data sheet or handbook table was at hand to check it)"
 )
 _SRC_SELF_DISCHARGE = (
     "(common practice) encyclopedia article 'Self-discharge', citing Garche "
     "et al., Encyclopedia of Electrochemical Power Sources (2013)"
 )
-_SRC_CURRENT = "(common practice; from memory of typical makers' data for this size)"
+_SRC_ACTIVATION = (
+    "(common practice) self-discharge rate doubling per +10 °C near room "
+    "temperature, in Arrhenius form; the activation energy is derived from "
+    "that rule (derived, shown in docs/power.md)"
+)
+_SRC_CURRENT = (
+    "(from memory: typical makers' data for this size; no data sheet was at "
+    "hand to check it)"
+)
 _SRC_TEMPERATURE = (
     "(common practice) usable capacity falls in the cold; alkaline steeply "
-    "below 0 °C; lithium systems hold up to about -20 °C or below"
+    "below 0 °C; lithium systems hold up to about -20 °C or below; the points "
+    "are (from memory), not read off a checked table"
 )
-_SRC_SHELF = "(common practice)"
+_SRC_SHELF = (
+    "(common practice; from memory: storage life makers state for the "
+    "chemistry at room temperature, not checked against a data sheet)"
+)
 _SRC_SIZE = "IEC 60086-2 size designations (generic size name only)"
+_SRC_DISCHARGE = (
+    "(from memory: the shape of makers' published low-drain discharge curves "
+    "at 20 °C, flat plateau for lithium systems and sloping for alkaline; no "
+    "handbook table was at hand to check the points, so treat them as shape only)"
+)
+_SRC_RESISTANCE = (
+    "(from memory: the order of magnitude of makers' internal-resistance "
+    "figures for this size, rising several-fold from 20 °C to -20 °C; no "
+    "handbook table was at hand to check the points)"
+)
 
 
 def _check_positive(field_name: str, value: float, unit: str) -> None:
     if not (isinstance(value, (int, float)) and not isinstance(value, bool)
             and math.isfinite(value) and value > 0):
         raise DesignValueError(field_name, value, "a finite number > 0", unit=unit)
+
+
+def _checked_discharge_curve(c) -> tuple[tuple[float, float], ...]:
+    curve = tuple((float(d), float(v)) for d, v in c.discharge_curve)
+    if not curve:
+        return curve
+    depths = [d for d, _ in curve]
+    volts = [v for _, v in curve]
+    if (len(curve) < 2 or depths[0] != 0.0 or depths[-1] != 1.0
+            or any(b <= a for a, b in zip(depths, depths[1:]))):
+        raise DesignValueError("Cell.discharge_curve", c.discharge_curve,
+                               "(depth of discharge, V) points from 0 to 1, strictly increasing")
+    if any(b > a for a, b in zip(volts, volts[1:])) or not all(math.isfinite(v) and v > 0 for v in volts):
+        raise DesignValueError("Cell.discharge_curve", c.discharge_curve,
+                               "voltages > 0 that never rise as the cell discharges", unit="V")
+    if volts[-1] > c.cutoff_voltage_V + 1e-9:
+        raise DesignValueError("Cell.discharge_curve", volts[-1],
+                               f"ending at or below the cut-off ({c.cutoff_voltage_V} V)", unit="V")
+    return curve
+
+
+def _checked_resistance_curve(c) -> tuple[tuple[float, float], ...]:
+    curve = tuple((float(t), float(r)) for t, r in c.resistance_curve)
+    if not curve:
+        return curve
+    temps = [t for t, _ in curve]
+    if any(b <= a for a, b in zip(temps, temps[1:])) or not all(
+            math.isfinite(t) and math.isfinite(r) and r >= 0 for t, r in curve):
+        raise DesignValueError("Cell.resistance_curve", c.resistance_curve,
+                               "(temperature °C, resistance >= 0 ohm) points, strictly increasing "
+                               "in temperature")
+    return curve
 
 
 @dataclass(frozen=True, slots=True)
@@ -153,6 +235,20 @@ class Cell:
         ``(field, source)`` for each value.
     notes : str
         Anything a designer should know about this cell.
+    discharge_curve : tuple of (float, float)
+        ``(depth_of_discharge, voltage_V)`` points of one cell at low drain,
+        depth of discharge from 0 (fresh) to 1 (the rated capacity
+        delivered), voltage falling; the last point is at or below
+        ``cutoff_voltage_V``. Empty when unknown (then the usable share
+        above a higher cut-off falls linearly, a cautious stand-in).
+    resistance_curve : tuple of (float, float)
+        ``(temperature_C, resistance_ohm)`` points of one cell's internal
+        resistance, strictly increasing in temperature, interpolated
+        linearly and held flat outside. Empty when unknown (pulse sag is
+        then not checked).
+    self_discharge_activation_eV : float
+        Activation energy of the self-discharge, eV, for the Arrhenius
+        temperature factor (see :func:`self_discharge_factor`).
     """
 
     key: str
@@ -172,6 +268,9 @@ class Cell:
     is_lithium: bool = False
     sources: tuple[tuple[str, str], ...] = ()
     notes: str = ""
+    discharge_curve: tuple[tuple[float, float], ...] = ()
+    resistance_curve: tuple[tuple[float, float], ...] = ()
+    self_discharge_activation_eV: float = ACTIVATION_ENERGY_EV
 
     def __post_init__(self) -> None:
         for name in ("key", "name", "chemistry", "size"):
@@ -209,6 +308,9 @@ class Cell:
                                    "capacity factors in [0, 1.2]")
         object.__setattr__(self, "temperature_curve", curve)
         object.__setattr__(self, "sources", tuple((str(a), str(b)) for a, b in self.sources))
+        object.__setattr__(self, "discharge_curve", _checked_discharge_curve(self))
+        object.__setattr__(self, "resistance_curve", _checked_resistance_curve(self))
+        _check_positive("Cell.self_discharge_activation_eV", self.self_discharge_activation_eV, "eV")
 
     @classmethod
     def custom(
@@ -228,6 +330,8 @@ class Cell:
         is_coin: bool = False,
         is_lithium: bool = False,
         notes: str = "",
+        discharge_curve: tuple[tuple[float, float], ...] = (),
+        resistance_curve: tuple[tuple[float, float], ...] = (),
     ) -> "Cell":
         """A cell from the user's own numbers (e.g. from a data sheet).
 
@@ -244,6 +348,7 @@ class Cell:
             temperature_curve=temperature_curve, cutoff_voltage_V=cutoff_voltage_V,
             rating_condition="as given by the user", is_coin=is_coin, is_lithium=is_lithium,
             sources=(("all", "user data"),), notes=notes,
+            discharge_curve=discharge_curve, resistance_curve=resistance_curve,
         )
 
     # The Cell and Pack share this interface so life functions take either.
@@ -383,7 +488,8 @@ class Pack:
 
 
 def _cell(key, name, chemistry, size, v, cap, s, pulse, cont, shelf, curve, cutoff,
-          rating, *, coin=False, lithium=False, capacity_src=_SRC_CAPACITY, notes=""):
+          rating, *, coin=False, lithium=False, capacity_src=_SRC_CAPACITY, notes="",
+          discharge=(), resistance=()):
     return Cell(
         key=key, name=name, chemistry=chemistry, size=size, nominal_voltage_V=v,
         capacity_mAh=cap, self_discharge_per_year=s, max_pulse_mA=pulse,
@@ -393,14 +499,17 @@ def _cell(key, name, chemistry, size, v, cap, s, pulse, cont, shelf, curve, cuto
             ("size", _SRC_SIZE),
             ("nominal_voltage_V", _SRC_NOMINAL),
             ("capacity_mAh", capacity_src),
-            ("cutoff_voltage_V", _SRC_CAPACITY_MEMORY),
+            ("cutoff_voltage_V", _SRC_CUTOFF),
             ("self_discharge_per_year", _SRC_SELF_DISCHARGE),
+            ("self_discharge_activation_eV", _SRC_ACTIVATION),
             ("max_pulse_mA", _SRC_CURRENT),
             ("max_continuous_mA", _SRC_CURRENT),
             ("temperature_curve", _SRC_TEMPERATURE),
             ("shelf_life_years", _SRC_SHELF),
+            ("discharge_curve", _SRC_DISCHARGE),
+            ("resistance_curve", _SRC_RESISTANCE),
         ),
-        notes=notes,
+        notes=notes, discharge_curve=discharge, resistance_curve=resistance,
     )
 
 
@@ -413,42 +522,73 @@ _CYL_T = ((-40.0, 0.5), (-20.0, 0.8), (0.0, 0.95), (20.0, 1.0), (70.0, 1.0))
 _BOBBIN_T = ((-55.0, 0.35), (-40.0, 0.5), (-20.0, 0.75), (0.0, 0.9), (20.0, 1.0),
              (60.0, 1.0), (85.0, 0.9))
 
+# Low-drain voltage of one cell against depth of discharge (0 fresh .. 1 rated
+# capacity delivered), 20 °C: (from memory), see _SRC_DISCHARGE. Alkaline slopes
+# the whole way; the lithium systems hold a plateau and fall only at the end.
+_ALKALINE_V = ((0.0, 1.58), (0.1, 1.42), (0.3, 1.32), (0.5, 1.24), (0.7, 1.16), (0.85, 1.08),
+               (0.95, 1.0), (1.0, 0.9))
+_LIFES2_V = ((0.0, 1.78), (0.03, 1.6), (0.2, 1.52), (0.5, 1.48), (0.8, 1.42), (0.93, 1.32),
+             (0.98, 1.15), (1.0, 0.9))
+_LIMNO2_V = ((0.0, 3.2), (0.05, 3.0), (0.3, 2.92), (0.6, 2.85), (0.85, 2.75), (0.93, 2.6),
+             (0.98, 2.3), (1.0, 2.0))
+_LISOCL2_V = ((0.0, 3.67), (0.05, 3.6), (0.4, 3.55), (0.75, 3.45), (0.9, 3.35), (0.95, 3.15),
+              (0.97, 3.0), (1.0, 2.0))
+
+# Internal resistance of one cell against temperature, (°C, ohm): (from memory),
+# see _SRC_RESISTANCE.
+_ALKALINE_AA_R = ((-20.0, 0.9), (0.0, 0.35), (20.0, 0.15), (55.0, 0.12))
+_ALKALINE_AAA_R = ((-20.0, 1.5), (0.0, 0.6), (20.0, 0.25), (55.0, 0.2))
+_LIFES2_R = ((-40.0, 0.6), (-20.0, 0.35), (0.0, 0.2), (20.0, 0.12), (60.0, 0.1))
+_COIN_R = ((-20.0, 60.0), (0.0, 30.0), (20.0, 15.0), (70.0, 10.0))
+_CYL_R = ((-40.0, 2.0), (-20.0, 0.8), (0.0, 0.45), (20.0, 0.3), (70.0, 0.2))
+_BOBBIN_AA_R = ((-55.0, 80.0), (-40.0, 45.0), (-20.0, 22.0), (0.0, 12.0), (20.0, 8.0),
+                (60.0, 5.0), (85.0, 4.0))
+_BOBBIN_C_R = tuple((t, r / 2.5) for t, r in _BOBBIN_AA_R)
+_BOBBIN_D_R = tuple((t, r / 3.5) for t, r in _BOBBIN_AA_R)
+
 _LOW_DRAIN = "low drain (about 1 mA or less continuous), 20 °C"
 
 _TABLE: tuple[Cell, ...] = (
     _cell("alkaline_aa", "alkaline AA", "alkaline zinc-manganese dioxide", "AA",
           1.5, 2500.0, 0.025, 1500.0, 500.0, 5.0, _ALKALINE_T, 0.9, _LOW_DRAIN,
-          notes="Capacity falls steeply below 0 °C; leaks when deeply discharged."),
+          notes="Capacity falls steeply below 0 °C; leaks when deeply discharged.",
+          discharge=_ALKALINE_V, resistance=_ALKALINE_AA_R),
     _cell("alkaline_aaa", "alkaline AAA", "alkaline zinc-manganese dioxide", "AAA",
           1.5, 1100.0, 0.025, 1000.0, 300.0, 5.0, _ALKALINE_T, 0.9, _LOW_DRAIN,
-          capacity_src=_SRC_CAPACITY_MEMORY),
+          capacity_src=_SRC_CAPACITY_MEMORY, discharge=_ALKALINE_V, resistance=_ALKALINE_AAA_R),
     _cell("li_fes2_aa", "lithium iron disulfide AA", "lithium iron disulfide", "AA",
           1.5, 3000.0, 0.01, 3000.0, 2000.0, 15.0, _LIFES2_T, 0.9, _LOW_DRAIN,
-          lithium=True, capacity_src=_SRC_CAPACITY_MEMORY),
+          lithium=True, capacity_src=_SRC_CAPACITY_MEMORY, discharge=_LIFES2_V,
+          resistance=_LIFES2_R),
     _cell("li_mno2_2032", "lithium manganese dioxide 2032 coin",
           "lithium manganese dioxide", "2032 coin", 3.0, 225.0, 0.01, 15.0, 3.0, 10.0,
           _COIN_T, 2.0, "about 0.2 mA continuous, 20 °C", coin=True, lithium=True,
           notes="High internal resistance: pulses of a few mA sag the voltage; "
-                "a buffer capacitor helps (common practice)."),
+                "a buffer capacitor helps (common practice).",
+          discharge=_LIMNO2_V, resistance=_COIN_R),
     _cell("li_mno2_2_3a", "lithium manganese dioxide 2/3A cylinder",
           "lithium manganese dioxide", "2/3A", 3.0, 1400.0, 0.01, 3000.0, 1500.0, 10.0,
-          _CYL_T, 2.0, _LOW_DRAIN, lithium=True, capacity_src=_SRC_CAPACITY_MEMORY),
+          _CYL_T, 2.0, _LOW_DRAIN, lithium=True, capacity_src=_SRC_CAPACITY_MEMORY,
+          discharge=_LIMNO2_V, resistance=_CYL_R),
     _cell("li_mno2_123", "lithium manganese dioxide 123 cylinder",
           "lithium manganese dioxide", "123", 3.0, 1500.0, 0.01, 3000.0, 1500.0, 10.0,
-          _CYL_T, 2.0, _LOW_DRAIN, lithium=True),
+          _CYL_T, 2.0, _LOW_DRAIN, lithium=True, discharge=_LIMNO2_V, resistance=_CYL_R),
     _cell("li_socl2_aa", "lithium thionyl chloride bobbin AA",
           "lithium thionyl chloride", "AA", 3.6, 2600.0, 0.01, 150.0, 100.0, 20.0,
           _BOBBIN_T, 2.0, _LOW_DRAIN, lithium=True,
           notes="Bobbin cells passivate in storage: the first pulse after a rest "
-                "can sag (voltage delay); low pulse capability (common practice)."),
+                "can sag (voltage delay); low pulse capability (common practice).",
+          discharge=_LISOCL2_V, resistance=_BOBBIN_AA_R),
     _cell("li_socl2_c", "lithium thionyl chloride bobbin C",
           "lithium thionyl chloride", "C", 3.6, 8500.0, 0.01, 300.0, 150.0, 20.0,
           _BOBBIN_T, 2.0, _LOW_DRAIN, lithium=True, capacity_src=_SRC_CAPACITY_MEMORY,
-          notes="Bobbin cells passivate in storage (voltage delay) (common practice)."),
+          notes="Bobbin cells passivate in storage (voltage delay) (common practice).",
+          discharge=_LISOCL2_V, resistance=_BOBBIN_C_R),
     _cell("li_socl2_d", "lithium thionyl chloride bobbin D",
           "lithium thionyl chloride", "D", 3.6, 19000.0, 0.01, 400.0, 250.0, 20.0,
           _BOBBIN_T, 2.0, _LOW_DRAIN, lithium=True, capacity_src=_SRC_CAPACITY_MEMORY,
-          notes="Bobbin cells passivate in storage (voltage delay) (common practice)."),
+          notes="Bobbin cells passivate in storage (voltage delay) (common practice).",
+          discharge=_LISOCL2_V, resistance=_BOBBIN_D_R),
 )
 
 _CELLS: dict[str, Cell] = {c.key: c for c in _TABLE}
@@ -539,7 +679,8 @@ def _derating(battery, temperature_C, usable_fraction, temperature_factor,
               self_discharge_per_year):
     if not isinstance(battery, (Cell, Pack)):
         raise DesignValueError("battery", battery, "a turnkit.battery.Cell or Pack")
-    _check_fraction("usable_fraction", usable_fraction)
+    # 0 is allowed: a cell that browns out under its pulses from the start delivers nothing.
+    _check_fraction("usable_fraction", usable_fraction, allow_zero=True)
     if temperature_factor is None:
         tf = battery.temperature_factor(temperature_C)
     else:
@@ -767,3 +908,279 @@ def capacity_needed_mAh(
                   "choose a chemistry with lower self-discharge"))
     out = i * 1e-3 * HOURS_PER_YEAR * life / denominator
     return float(out) if np.ndim(out) == 0 else out
+
+
+# ---------------------------------------------------------------- site temperature
+
+
+def self_discharge_factor(temperature_C, activation_eV: float = ACTIVATION_ENERGY_EV,
+                          reference_C: float = REFERENCE_TEMPERATURE_C):
+    """Arrhenius factor of the self-discharge rate against the 20 °C rate; vectorised.
+
+    ``exp(Ea / k_B * (1/T_ref - 1/T))`` with absolute temperatures.
+
+    Parameters
+    ----------
+    temperature_C : float or array
+        Cell temperature, °C (above -273.15).
+    activation_eV : float
+        Activation energy, eV.
+    reference_C : float
+        Temperature at which the factor is 1, °C.
+
+    Returns
+    -------
+    float or numpy.ndarray
+        Rate at ``temperature_C`` divided by the rate at ``reference_C``.
+
+    References
+    ----------
+    S. Arrhenius, Z. Phys. Chem. 4, 226 (1889). The default activation energy
+    turns the common-practice rule "doubling per +10 °C near room temperature"
+    into this form (derived, shown in docs/power.md).
+
+    Examples
+    --------
+    >>> round(self_discharge_factor(30.0), 3)
+    2.0
+    """
+    t = np.asarray(temperature_C, dtype=float) + 273.15
+    if not np.all(np.isfinite(t) & (t > 0)):
+        raise DesignValueError("temperature_C", temperature_C, "a finite temperature above -273.15",
+                               unit="°C")
+    out = np.exp(activation_eV / BOLTZMANN_EV_PER_K * (1.0 / (reference_C + 273.15) - 1.0 / t))
+    return float(out) if out.ndim == 0 else out
+
+
+def annual_temperatures_C(minimum_C: float, maximum_C: float, points: int = 365) -> np.ndarray:
+    """A year of site temperatures swinging as a sine between a minimum and a maximum, °C.
+
+    ``T(d) = mean + half_swing * cos(2 pi (d + 1/2) / points)`` for ``d = 0 ..
+    points-1`` (evenly spaced over the year; only the spread of values matters
+    for the averages taken over it).
+    """
+    lo, hi = float(minimum_C), float(maximum_C)
+    if not (math.isfinite(lo) and math.isfinite(hi)) or hi < lo:
+        raise DesignValueError("temperature_max", hi, f">= temperature_min ({lo:g} °C)", unit="°C")
+    phase = 2.0 * np.pi * (np.arange(points) + 0.5) / points
+    return 0.5 * (lo + hi) + 0.5 * (hi - lo) * np.cos(phase)
+
+
+@dataclass(frozen=True, slots=True)
+class SiteDerating:
+    """What a site's temperatures do to a battery.
+
+    Attributes
+    ----------
+    coldest_C, hottest_C, mean_C : float
+        The site's temperature range and mean, °C.
+    temperature_factor : float
+        Capacity factor at the coldest temperature (the cell must deliver
+        the capacity there; cautious).
+    self_discharge_factor : float
+        Year-mean Arrhenius factor of the self-discharge against 20 °C.
+    self_discharge_per_year : float
+        Table value times that factor, fraction of the nominal capacity per year.
+    shelf_life_years : float
+        The chemistry's 20 °C shelf life divided by the same factor when it
+        exceeds 1 (the storage losses that set it speed up alike; derived,
+        docs/power.md); never longer than the 20 °C figure, which is all the
+        data support.
+    activation_eV : float
+        Activation energy used, eV.
+    """
+
+    coldest_C: float
+    hottest_C: float
+    mean_C: float
+    temperature_factor: float
+    self_discharge_factor: float
+    self_discharge_per_year: float
+    shelf_life_years: float
+    activation_eV: float
+
+
+def site_derating(battery: Cell | Pack, temperature_C: float = REFERENCE_TEMPERATURE_C, *,
+                  temperature_min_C: float | None = None,
+                  temperature_max_C: float | None = None) -> SiteDerating:
+    """Capacity, self-discharge and shelf life of a battery at a site.
+
+    Parameters
+    ----------
+    battery : Cell or Pack
+    temperature_C : float
+        Constant site temperature, °C (used when no range is given).
+    temperature_min_C, temperature_max_C : float, optional
+        The site's coldest and hottest temperatures over a year, °C; the
+        year is a sine between them (both or neither).
+
+    Returns
+    -------
+    SiteDerating
+
+    Examples
+    --------
+    >>> from turnkit.battery import cell, site_derating
+    >>> d = site_derating(cell("li_socl2_aa"), 30.0)
+    >>> round(d.self_discharge_per_year, 4), round(d.shelf_life_years, 2)
+    (0.02, 10.0)
+    """
+    if not isinstance(battery, (Cell, Pack)):
+        raise DesignValueError("battery", battery, "a turnkit.battery.Cell or Pack")
+    if (temperature_min_C is None) != (temperature_max_C is None):
+        raise DesignValueError("temperature_min" if temperature_min_C is None else "temperature_max",
+                               None, "given together with the other end of the range", unit="°C")
+    if temperature_min_C is None:
+        temps = np.array([float(temperature_C)])
+        cold = hot = float(temperature_C)
+    else:
+        temps = annual_temperatures_C(temperature_min_C, temperature_max_C)
+        cold, hot = float(temperature_min_C), float(temperature_max_C)
+    tf = float(battery.temperature_factor(cold))
+    battery.temperature_factor(hot)  # refuses a site hotter than the cell's range
+    ea = battery.cell.self_discharge_activation_eV
+    factor = float(np.mean(self_discharge_factor(temps, ea)))
+    return SiteDerating(
+        coldest_C=cold, hottest_C=hot, mean_C=float(temps.mean()), temperature_factor=tf,
+        self_discharge_factor=factor,
+        self_discharge_per_year=battery.self_discharge_per_year * factor,
+        shelf_life_years=battery.shelf_life_years / max(factor, 1.0), activation_eV=ea)
+
+
+# ---------------------------------------------------------------- discharge curve and pulses
+
+
+def open_circuit_voltage_V(battery: Cell | Pack, depth_of_discharge):
+    """Low-drain voltage of the battery at a depth of discharge, V; vectorised.
+
+    The cell's ``discharge_curve`` interpolated linearly, times the cells in
+    series. Without a curve, a straight line from the nominal voltage at 0
+    to the rated end voltage at 1 (a stand-in).
+    """
+    c = battery.cell
+    d = np.clip(np.asarray(depth_of_discharge, dtype=float), 0.0, 1.0)
+    if c.discharge_curve:
+        dod, volts = zip(*c.discharge_curve)
+    else:
+        dod, volts = (0.0, 1.0), (c.nominal_voltage_V, c.cutoff_voltage_V)
+    out = np.interp(d, dod, volts) * battery.series
+    return float(out) if out.ndim == 0 else out
+
+
+def internal_resistance_ohm(battery: Cell | Pack, temperature_C):
+    """Internal resistance of the battery at a temperature, ohm; vectorised.
+
+    The cell's ``resistance_curve`` interpolated linearly (held flat beyond
+    its ends), times ``series / parallel``; 0 when the curve is unknown.
+    """
+    c = battery.cell
+    t = np.asarray(temperature_C, dtype=float)
+    if not c.resistance_curve:
+        out = np.zeros_like(t)
+    else:
+        temps, ohms = zip(*c.resistance_curve)
+        out = np.interp(t, temps, ohms) * battery.series / battery.parallel
+    return float(out) if out.ndim == 0 else out
+
+
+def pulse_sag_V(current_mA, duration_s, resistance_ohm, buffer_uF=0.0):
+    """Voltage drop at the end of a current pulse, V; vectorised.
+
+    Without a buffer capacitor the drop is ``I * R``. A capacitor ``C`` across
+    the battery supplies the pulse at first; the drop then rises as
+    ``I * R * (1 - exp(-t / (R * C)))``, never more than ``I * t / C``
+    (the capacitor alone carrying the whole pulse charge).
+
+    Parameters
+    ----------
+    current_mA : float or array
+        Pulse current, mA.
+    duration_s : float or array
+        Pulse length, s.
+    resistance_ohm : float or array
+        Battery internal resistance, ohm.
+    buffer_uF : float or array
+        Buffer capacitance across the battery, µF (0: none).
+
+    Returns
+    -------
+    float or numpy.ndarray
+        Drop below the battery's open-circuit voltage, V.
+
+    References
+    ----------
+    First-order RC step response (derived, shown in docs/power.md).
+    """
+    if all(isinstance(x, (int, float)) for x in (current_mA, duration_s, resistance_ohm, buffer_uF)):
+        # Scalars (sizing): the same formula without array overhead.
+        tau = resistance_ohm * buffer_uF * 1e-6
+        frac = -math.expm1(-duration_s / tau) if tau > 0 else 1.0
+        return current_mA * 1e-3 * resistance_ohm * frac
+    i = np.asarray(current_mA, dtype=float) * 1e-3
+    t = np.asarray(duration_s, dtype=float)
+    r = np.asarray(resistance_ohm, dtype=float)
+    c = np.asarray(buffer_uF, dtype=float) * 1e-6
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        tau = r * c
+        frac = np.where(tau > 0, -np.expm1(-t / np.where(tau > 0, tau, 1.0)), 1.0)
+    out = i * r * frac
+    return float(out) if out.ndim == 0 else out
+
+
+def usable_fraction_under_pulse(battery: Cell | Pack, cutoff_voltage_V, pulse_sag_V_=0.0):
+    """Depth of discharge at which the supply under a pulse reaches the cut-off; vectorised.
+
+    Solves ``V_oc(D) - sag = V_cut`` for ``D`` on the battery's discharge
+    curve (which never rises, so the crossing is unique); 1 when the loaded
+    voltage stays above the cut-off down to the rated end, 0 when a fresh
+    cell already sags below it.
+
+    Parameters
+    ----------
+    battery : Cell or Pack
+    cutoff_voltage_V : float or array
+        Supply voltage below which the electronics stop (lose the count), V.
+    pulse_sag_V_ : float or array
+        Drop under the largest pulse (see :func:`pulse_sag_V`), V.
+
+    Returns
+    -------
+    float or numpy.ndarray
+        Share of the rated capacity delivered before the count is lost.
+    """
+    c = battery.cell
+    if c.discharge_curve:
+        dod = np.array([d for d, _ in c.discharge_curve])
+        volts = np.array([v for _, v in c.discharge_curve]) * battery.series
+    else:
+        dod = np.array([0.0, 1.0])
+        volts = np.array([c.nominal_voltage_V, c.cutoff_voltage_V]) * battery.series
+    need = np.asarray(cutoff_voltage_V, dtype=float) + np.asarray(pulse_sag_V_, dtype=float)
+    # np.interp wants increasing x: read the curve backwards (voltage up, depth down).
+    # Flat stretches of the curve give several depths per voltage; the deepest is kept.
+    v_rev, d_rev = volts[::-1], dod[::-1]
+    keep = np.concatenate([[True], np.diff(v_rev) > 0])
+    out = np.interp(need, v_rev[keep], d_rev[keep], left=1.0, right=0.0)
+    return float(out) if out.ndim == 0 else out
+
+
+def buffer_capacitance_needed_uF(current_mA, duration_s, allowed_drop_V):
+    """Smallest buffer capacitor that carries a pulse alone within a voltage drop, µF.
+
+    ``C >= I * t / dV``: the capacitor supplies the whole pulse charge, so
+    the battery's own contribution is margin (cautious). ``inf`` where no
+    drop is allowed.
+
+    Examples
+    --------
+    10 mA for 1 ms within 0.1 V needs 100 µF:
+
+    >>> round(buffer_capacitance_needed_uF(10.0, 1e-3, 0.1), 6)
+    100.0
+    """
+    i = np.asarray(current_mA, dtype=float) * 1e-3
+    t = np.asarray(duration_s, dtype=float)
+    dv = np.asarray(allowed_drop_V, dtype=float)
+    with np.errstate(divide="ignore"):
+        out = np.where(dv > 0, i * t / np.where(dv > 0, dv, 1.0) * 1e6, np.inf)
+    return float(out) if out.ndim == 0 else out

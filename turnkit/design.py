@@ -117,6 +117,10 @@ UNIT_DIMENSIONS: dict[str, tuple[str, str]] = {
     "uV/K": ("voltage drift", "uV_per_K"),
     "uF": ("capacitance", "uF"),
     "mW": ("power", "mW"),
+    "mA": ("current", "mA"),
+    "N": ("force", "N"),
+    "N*m": ("torque", "N_m"),
+    "N*m/A": ("torque constant", "N_m_per_A"),
 }
 
 _IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
@@ -744,12 +748,15 @@ class PowerConsumer(_Section):
         _current("waking", "current while waking and settling"),
         _current("polling", "current while reading the latches"),
         _current("tracking", "current while actively tracking motion"),
+        FieldSpec("fault", "quantity", "current while in fault, waiting to be re-homed (omitted: the asleep "
+                  "current, since the firmware stops polling and sleeps in fault)", units=("uA",), low=0.0),
     )
     name: str
     asleep_uA: float
     waking_uA: float
     polling_uA: float
     tracking_uA: float
+    fault_uA: float | None = None
 
     def _check_together(self) -> None:
         if not self.name.strip():
@@ -774,10 +781,44 @@ class PowerDesign(_Section):
     FIELDS: ClassVar[tuple[FieldSpec, ...]] = (
         FieldSpec("cutoff_voltage", "quantity", "supply voltage below which the electronics stop "
                   "(omitted: the battery chemistry's end voltage)", units=("V",), low=0.0, low_open=True),
+        FieldSpec("moves_per_day", "number", "driven moves of the motor per day (omitted: none)", low=0.0),
+        FieldSpec("move_stroke", "quantity", "output travel of one driven move (omitted: the required stroke)",
+                  units=("mm", "deg"), low=0.0, low_open=True),
+        FieldSpec("move_load", "quantity", "load the motor drives at the output: a force for a linear output, "
+                  "a torque for a rotary one (omitted: no load)", units=("N", "N*m"), low=0.0),
+        FieldSpec("motor_speed", "quantity", "motor speed while driving", units=("rpm",), low=0.0,
+                  low_open=True),
+        FieldSpec("motor_current", "quantity", "motor current while driving the load (or give the torque "
+                  "constant)", units=("mA",), low=0.0),
+        FieldSpec("motor_torque_constant", "quantity", "motor torque constant k_t, for the current "
+                  "I = I_0 + T / k_t (instead of motor_current)", units=("N*m/A",), low=0.0, low_open=True),
+        FieldSpec("motor_no_load_current", "quantity", "motor current with no load, I_0 (with the torque "
+                  "constant)", units=("mA",), low=0.0),
+        FieldSpec("motor_start_current", "quantity", "peak motor current at start (for the voltage sag)",
+                  units=("mA",), low=0.0, low_open=True),
+        FieldSpec("motor_start_time", "quantity", "how long the start current lasts", units=("ms",), low=0.0,
+                  low_open=True),
+        FieldSpec("buffer_capacitance", "quantity", "capacitor across the battery that carries the pulses "
+                  "(omitted: none)", units=("uF",), low=0.0),
+        FieldSpec("buffer_leakage", "quantity", "leakage current of that capacitor, drawn all the time",
+                  units=("uA",), low=0.0),
     )
     consumers: tuple[PowerConsumer, ...] = ()
     cutoff_voltage_V: float | None = None
     host_supply: HostSupply | None = None
+    moves_per_day: float | None = None
+    move_stroke_mm: float | None = None
+    move_stroke_deg: float | None = None
+    move_load_N: float | None = None
+    move_load_N_m: float | None = None
+    motor_speed_rpm: float | None = None
+    motor_current_mA: float | None = None
+    motor_torque_constant_N_m_per_A: float | None = None
+    motor_no_load_current_mA: float | None = None
+    motor_start_current_mA: float | None = None
+    motor_start_time_ms: float | None = None
+    buffer_capacitance_uF: float | None = None
+    buffer_leakage_uA: float | None = None
 
     def _check_together(self) -> None:
         if not isinstance(self.consumers, tuple) or not all(
@@ -789,6 +830,19 @@ class PowerDesign(_Section):
                 _fail(self, "consumers", name, "unique consumer names")
         if self.host_supply is not None and not isinstance(self.host_supply, HostSupply):
             _fail(self, "host_supply", self.host_supply, "a HostSupply or None")
+        if self.moves_per_day:
+            if self.motor_speed_rpm is None:
+                _fail(self, "motor_speed_rpm", None, "given when moves_per_day is set", unit="rpm",
+                      hint="the motor speed sets how long each move takes")
+            if (self.motor_current_mA is None) == (self.motor_torque_constant_N_m_per_A is None):
+                _fail(self, "motor_current_mA", self.motor_current_mA,
+                      "given, or else motor_torque_constant (exactly one of the two)", unit="mA")
+        if self.motor_no_load_current_mA is not None and self.motor_torque_constant_N_m_per_A is None:
+            _fail(self, "motor_no_load_current_mA", self.motor_no_load_current_mA,
+                  "given only with motor_torque_constant", unit="mA")
+        if (self.motor_start_current_mA is None) != (self.motor_start_time_ms is None):
+            _fail(self, "motor_start_time_ms" if self.motor_start_time_ms is None else "motor_start_current_mA",
+                  None, "given together with the other (start current and its duration)")
 
 
 @dataclass(frozen=True, slots=True)
@@ -812,6 +866,10 @@ class BatteryDesign(_Section):
                   low=0.0, low_open=True),
         FieldSpec("self_discharge_per_year", "fraction", "fraction of capacity lost per year on the shelf",
                   low=0.0, high=1.0, high_open=True),
+        FieldSpec("temperature_min", "quantity", "coldest site temperature over a year (with temperature_max; "
+                  "replaces temperature)", units=("degC",), low=-60.0, high=125.0),
+        FieldSpec("temperature_max", "quantity", "hottest site temperature over a year (with temperature_min)",
+                  units=("degC",), low=-60.0, high=125.0),
     )
     chemistry: str | None = None
     cells_series: int = 1
@@ -820,8 +878,16 @@ class BatteryDesign(_Section):
     capacity_mAh: float | None = None
     nominal_voltage_V: float | None = None
     self_discharge_per_year: float | None = None
+    temperature_min_degC: float | None = None
+    temperature_max_degC: float | None = None
 
     def _check_together(self) -> None:
+        if (self.temperature_min_degC is None) != (self.temperature_max_degC is None):
+            _fail(self, "temperature_max_degC" if self.temperature_max_degC is None else "temperature_min_degC",
+                  None, "given together with the other end of the site's range", unit="degC")
+        if self.temperature_min_degC is not None and self.temperature_max_degC < self.temperature_min_degC:
+            _fail(self, "temperature_max_degC", self.temperature_max_degC,
+                  f">= temperature_min ({_short(self.temperature_min_degC)} degC)", unit="degC")
         if self.chemistry is None:
             missing = [k for k, v in (("capacity", self.capacity_mAh), ("nominal_voltage", self.nominal_voltage_V))
                        if v is None]

@@ -77,7 +77,8 @@ _TOP_KEYS = (
     "format_version", "name", "description", "gear_train", "sensor", "latches", "counter", "schedule",
     "power", "battery", "motion", "requirements", "magnet", "accuracy", "count_memory",
 )
-_POWER_KEYS = ("cutoff_voltage", "consumers", "host_supply")
+_POWER_KEYS = ("cutoff_voltage", "consumers", "host_supply") + tuple(
+    spec.key for spec in d.PowerDesign.FIELDS if spec.key != "cutoff_voltage")
 
 # A number followed by a unit, for the JSON Schema (the range is checked on load).
 _QUANTITY_PATTERN = r"^\s*[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?\s*[^\s\d.+-].*$"
@@ -95,6 +96,7 @@ _EXAMPLES = {
     "mm/s^2": "100 mm/s^2", "s": "2 s", "ms": "25 ms", "us": "50 us", "years": "5 years", "mV": "2 mV",
     "V": "1.5 V", "uA": "15 uA", "mAh": "3000 mAh", "Hz": "20 Hz", "degC": "20 degC",
     "mT": "30 mT", "%/K": "-0.12 %/K", "ppm/K": "11.5 ppm/K", "uV/K": "2 uV/K", "uF": "100 uF", "mW": "3 mW",
+    "mA": "120 mA", "N": "40 N", "N*m": "0.5 N*m", "N*m/A": "0.012 N*m/A",
 }
 
 
@@ -284,7 +286,8 @@ class _Reader:
 
     def power(self, table: dict) -> d.PowerDesign:
         self.unknown_keys(table, _POWER_KEYS, "power")
-        kwargs = self.fields(d.PowerDesign, {k: v for k, v in table.items() if k == "cutoff_voltage"}, "power")
+        kwargs = self.fields(d.PowerDesign, {k: v for k, v in table.items() if k not in ("consumers", "host_supply")},
+                             "power")
         consumers = self.array_of_tables(table, "consumers", "power")
         kwargs["consumers"] = tuple(
             self.section(d.PowerConsumer, c, f"power.consumers[{i}]") for i, c in enumerate(consumers)

@@ -33,9 +33,13 @@ Meaning of the states (times must follow it in both entry points):
 ``tracking``
     continuously awake, following the motor while it is driven.
 ``fault``
-    awake after an ambiguous step, waiting to be re-homed.
+    after an ambiguous step or an overflow fault, waiting to be re-homed. The
+    firmware stops polling and sleeps (docs/counter.md), so a consumer's
+    fault current defaults to its ``asleep`` current; give a higher one for
+    firmware that stays awake in fault.
 ``power_lost``
-    supply below the electronics' minimum (usually no current).
+    supply below the electronics' minimum: the count is gone and the
+    electronics draw nothing (default 0).
 
 Per-wake pulses of a consumer (e.g. latches powered only for a few µs) are
 booked under ``waking``.
@@ -70,6 +74,9 @@ __all__ = [
     "check_quiescent_budget",
     "life_vs_poll_period",
     "life_vs_adaptive_schedule",
+    "MoveEnergy",
+    "move_energy",
+    "time_to_flat_days",
 ]
 
 STATES: tuple[str, ...] = (
@@ -99,9 +106,10 @@ class Consumer:
         What it is, in plain words (``"angle sensor"``).
     current_uA : mapping of str to float, or sequence of 7 floats
         Current in each state, µA. ``asleep``, ``waking``, ``polling`` and
-        ``tracking`` are required; ``fast_polling`` and ``fault`` default to
-        the ``polling`` current, ``power_lost`` to 0. Stored as a tuple in
-        :data:`STATES` order.
+        ``tracking`` are required; ``fast_polling`` defaults to the
+        ``polling`` current, ``fault`` to the ``asleep`` current (the
+        firmware stops polling and sleeps in fault), ``power_lost`` to 0.
+        Stored as a tuple in :data:`STATES` order.
     wake_pulse_uA : float, optional
         Extra current drawn for ``wake_pulse_s`` at every wake, µA.
     wake_pulse_s : float, optional
@@ -130,7 +138,7 @@ class Consumer:
                     hint="asleep, waking, polling and tracking are required")
             values = dict(given)
             values.setdefault("fast_polling", values["polling"])
-            values.setdefault("fault", values["polling"])
+            values.setdefault("fault", values["asleep"])
             values.setdefault("power_lost", 0.0)
             currents = tuple(values[s] for s in STATES)
         else:
@@ -153,8 +161,9 @@ class Consumer:
                         wake_pulse_s: float = 0.0) -> "Consumer":
         """A load with one sleep current and one awake current.
 
-        ``awake_uA`` applies to waking, polling, fast polling and fault;
-        ``tracking_uA`` (default ``awake_uA``) to tracking; 0 when power is lost.
+        ``awake_uA`` applies to waking, polling and fast polling;
+        ``tracking_uA`` (default ``awake_uA``) to tracking; ``sleep_uA`` to
+        fault (the firmware sleeps in fault); 0 when power is lost.
         """
         track = awake_uA if tracking_uA is None else tracking_uA
         return cls(name, {"asleep": sleep_uA, "waking": awake_uA, "polling": awake_uA,
@@ -875,3 +884,168 @@ def life_vs_adaptive_schedule(
         shelf_life_years=battery.shelf_life_years,
         **_curve_findings(profile, battery, life, current, temperature_C),
     )
+
+
+# ---------------------------------------------------------------- driven moves
+
+
+@dataclass(frozen=True, slots=True)
+class MoveEnergy:
+    """Charge and energy of the motor's driven moves.
+
+    Attributes
+    ----------
+    moves_per_day : float
+    motor_turns_per_move : float
+        Motor turns over one move's stroke.
+    time_per_move_s : float
+        Motor turns divided by the motor speed, s (acceleration neglected).
+    output_work_per_move_J : float
+        Load times stroke at the output, J.
+    motor_work_per_move_J : float
+        Output work divided by the gear train's forward efficiency, J.
+    motor_torque_Nm : float
+        Torque at the motor shaft while driving the load, N·m.
+    motor_current_mA : float
+        Motor current while driving, mA (given, or from the motor constants).
+    charge_per_move_C : float
+        ``motor_current * time_per_move``, C.
+    electrical_energy_per_move_J : float
+        Charge per move times the supply voltage, J.
+    motor_efficiency : float
+        Motor shaft work over electrical energy; above 1 means the given
+        current cannot drive this load through this train.
+    charge_per_day_mAh : float
+    tracking_fraction : float
+        Share of the day spent driving (the electronics track meanwhile).
+    """
+
+    moves_per_day: float
+    motor_turns_per_move: float
+    time_per_move_s: float
+    output_work_per_move_J: float
+    motor_work_per_move_J: float
+    motor_torque_Nm: float
+    motor_current_mA: float
+    charge_per_move_C: float
+    electrical_energy_per_move_J: float
+    motor_efficiency: float
+    charge_per_day_mAh: float
+    tracking_fraction: float
+
+    @property
+    def average_current_uA(self) -> float:
+        """Motor charge per day spread over the day, µA."""
+        return self.charge_per_day_mAh / 24.0 * 1e3
+
+    def consumer(self, name: str = "motor") -> Consumer:
+        """The motor as a :class:`Consumer` drawing its current only while tracking."""
+        return Consumer(name, {"asleep": 0.0, "waking": 0.0, "polling": 0.0,
+                               "tracking": self.motor_current_mA * 1e3})
+
+
+def move_energy(
+    *,
+    moves_per_day: float,
+    motor_turns_per_move: float,
+    output_work_per_move_J: float,
+    gear_efficiency: float,
+    motor_speed_rpm: float,
+    supply_voltage_V: float,
+    motor_current_mA: float | None = None,
+    torque_constant_Nm_per_A: float | None = None,
+    no_load_current_mA: float = 0.0,
+) -> MoveEnergy:
+    """Charge and energy per driven move and per day.
+
+    Parameters
+    ----------
+    moves_per_day : float
+        Driven moves per day (>= 0).
+    motor_turns_per_move : float
+        Motor turns over one move, turns (> 0).
+    output_work_per_move_J : float
+        Load force times stroke (linear) or load torque times angle in radians
+        (rotary) at the output, J (>= 0).
+    gear_efficiency : float
+        Forward efficiency of the gear train, in (0, 1].
+    motor_speed_rpm : float
+        Motor speed while driving, rpm (> 0).
+    supply_voltage_V : float
+        Battery voltage the motor runs from, V.
+    motor_current_mA : float, optional
+        Measured or rated motor current while driving this load, mA.
+    torque_constant_Nm_per_A, no_load_current_mA : float, optional
+        Motor constants: ``I = I_0 + T_motor / k_t`` (give these or
+        ``motor_current_mA``).
+
+    Returns
+    -------
+    MoveEnergy
+
+    Notes
+    -----
+    Motor shaft work ``W_m = W_out / eta``; shaft torque
+    ``T_m = W_m / (2 pi N)``; time per move ``t = N / (n / 60)``; charge
+    ``Q = I t`` (derived, shown in docs/power.md).
+
+    Examples
+    --------
+    A 100 N load over 50 mm (5 J) through a 50 % train at 60 rpm for 100 motor
+    turns (100 s), 0.01 N·m/A motor constant:
+
+    >>> m = move_energy(moves_per_day=1, motor_turns_per_move=100.0, output_work_per_move_J=5.0,
+    ...                 gear_efficiency=0.5, motor_speed_rpm=60.0, supply_voltage_V=3.0,
+    ...                 torque_constant_Nm_per_A=0.01)
+    >>> round(m.motor_current_mA, 3), round(m.charge_per_move_C, 3)
+    (1591.549, 159.155)
+    """
+    n = _finite_nonneg("moves_per_day", moves_per_day, "1/day")
+    turns = _finite_nonneg("motor_turns_per_move", motor_turns_per_move, "turn")
+    work = _finite_nonneg("output_work_per_move_J", output_work_per_move_J, "J")
+    eta = _finite_nonneg("gear_efficiency", gear_efficiency, "")
+    if not 0 < eta <= 1:
+        raise DesignValueError("gear_efficiency", eta, "in (0, 1]")
+    rpm = _finite_nonneg("motor_speed_rpm", motor_speed_rpm, "rpm")
+    v = _finite_nonneg("supply_voltage_V", supply_voltage_V, "V")
+    if rpm <= 0:
+        raise DesignValueError("motor_speed_rpm", rpm, "a finite number > 0", unit="rpm")
+    if turns <= 0:
+        raise DesignValueError("motor_turns_per_move", turns, "a finite number > 0", unit="turn")
+    motor_work = work / eta
+    torque = motor_work / (2.0 * math.pi * turns)
+    if (motor_current_mA is None) == (torque_constant_Nm_per_A is None):
+        raise DesignValueError("motor_current_mA", motor_current_mA,
+                               "given, or else the torque constant (exactly one of the two)", unit="mA")
+    if motor_current_mA is not None:
+        current = _finite_nonneg("motor_current_mA", motor_current_mA, "mA")
+    else:
+        kt = _finite_nonneg("torque_constant_Nm_per_A", torque_constant_Nm_per_A, "N*m/A")
+        if kt <= 0:
+            raise DesignValueError("torque_constant_Nm_per_A", kt, "a finite number > 0", unit="N*m/A")
+        current = _finite_nonneg("no_load_current_mA", no_load_current_mA, "mA") + torque / kt * 1e3
+    t_move = turns / (rpm / 60.0)
+    if n * t_move > SECONDS_PER_DAY:
+        raise DesignValueError("moves_per_day", n, f"at most {SECONDS_PER_DAY / t_move:.4g}",
+                               unit="1/day", hint=f"each move takes {t_move:.4g} s at this motor speed")
+    charge = current * 1e-3 * t_move
+    energy = charge * v
+    return MoveEnergy(
+        moves_per_day=n, motor_turns_per_move=turns, time_per_move_s=t_move,
+        output_work_per_move_J=work, motor_work_per_move_J=motor_work, motor_torque_Nm=torque,
+        motor_current_mA=current, charge_per_move_C=charge, electrical_energy_per_move_J=energy,
+        motor_efficiency=motor_work / energy if energy > 0 else (math.inf if motor_work > 0 else 0.0),
+        charge_per_day_mAh=charge * n / 3.6, tracking_fraction=n * t_move / SECONDS_PER_DAY)
+
+
+def time_to_flat_days(usable_capacity_mAh: float, current_uA: float,
+                      self_discharge_mAh_per_year: float = 0.0) -> float:
+    """Days until a battery's usable capacity is gone at a steady current.
+
+    ``C_use / (I_mA * 24 + self_discharge / 365.25)``; ``inf`` when nothing drains it.
+    """
+    c = _finite_nonneg("usable_capacity_mAh", usable_capacity_mAh, "mAh")
+    i = _finite_nonneg("current_uA", current_uA, "uA")
+    sd = _finite_nonneg("self_discharge_mAh_per_year", self_discharge_mAh_per_year, "mAh/year")
+    drain = i * 1e-3 * 24.0 + sd / 365.25
+    return c / drain if drain > 0 else math.inf

@@ -55,7 +55,7 @@ import hashlib
 import math
 import tomllib
 import warnings
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from fractions import Fraction
 from functools import lru_cache
 from pathlib import Path
@@ -268,7 +268,8 @@ def build_profile(design: ActuatorDesign, supply_voltage_V: float | None = None)
                                hint="add a [[power.consumers]] table with asleep, waking, polling and tracking")
     built = tuple(
         power.Consumer(c.name, {"asleep": c.asleep_uA, "waking": c.waking_uA, "polling": c.polling_uA,
-                                "tracking": c.tracking_uA})
+                                "tracking": c.tracking_uA,
+                                "fault": c.asleep_uA if c.fault_uA is None else c.fault_uA})
         for c in consumers)
     return power.CurrentProfile(built, supply_voltage_V=supply_voltage_V or 3.0)
 
@@ -286,9 +287,10 @@ def usable_fraction(pack, cutoff_voltage_V: float | None) -> float:
     Returns
     -------
     float
-        1 at or below the pack's rated end voltage, falling linearly to 0 at its nominal
-        voltage: a cautious stand-in for the discharge curve (common practice), since
-        primary cells deliver most of their charge on a plateau near the nominal voltage.
+        The depth of discharge at which the cell's tabulated low-drain voltage reaches
+        the cut-off (no pulse; see :func:`turnkit.battery.usable_fraction_under_pulse`);
+        1 at or below the pack's rated end voltage. Cells without a discharge curve fall
+        linearly from 1 at the end voltage to 0 at the nominal voltage (a stand-in).
 
     Raises
     ------
@@ -301,7 +303,7 @@ def usable_fraction(pack, cutoff_voltage_V: float | None) -> float:
         raise DesignValueError("power.cutoff_voltage", cutoff_voltage_V,
                                f"below the battery's nominal voltage ({pack.nominal_voltage_V:g} V for "
                                f"{pack.name})", unit="V", hint="add cells in series or lower the cut-off")
-    return (pack.nominal_voltage_V - cutoff_voltage_V) / (pack.nominal_voltage_V - pack.cutoff_voltage_V)
+    return float(batt.usable_fraction_under_pulse(pack, cutoff_voltage_V))
 
 
 def _motor_deg_per_output(train) -> float:
@@ -816,6 +818,11 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     # -- power and battery ---------------------------------------------------
     pack = build_battery(design)
     profile = build_profile(design, pack.nominal_voltage_V if pack is not None else None)
+    # Driven moves: the motor (and any buffer leakage) join the budget; the electronics track meanwhile.
+    electronics = profile
+    profile, moves, move_values = _moves_stage(design, train, profile)
+    values.extend(move_values)
+    warns.extend(_move_warnings(moves, design.power))
     motion_events = sum(sc.bursts_per_day or 0.0 for sc in design.motion if sc.kind == "bursts")
     motion_fraction = 0.0
     for sc in design.motion:
@@ -829,6 +836,8 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
                     motion_fraction=min(motion_fraction, 0.5), motion_events_per_day=motion_events)
     if isinstance(schedule, AdaptiveSchedule):
         sched_kw.update(fast_period_s=schedule.fast_period_s, hold_s=schedule.hold_s)
+    if moves is not None:
+        sched_kw["tracking_fraction"] = moves.tracking_fraction
     budget = power.budget_from_schedule(profile, **sched_kw)
     add("average_current_uA", "Average current", budget.average_current_uA, "uA", "power",
         equation="average_current")
@@ -838,6 +847,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     add("dominant_consumer", "Largest consumer", budget.dominant_consumer, "", "power",
         note=f"{budget.by_consumer()[budget.dominant_consumer]:.3g} uA of the average")
     add("dominant_state", "State that costs the most charge", budget.dominant_state, "", "power")
+    values.extend(_breakdown_values(budget))
     if motion_events:
         assumptions.append((f"Back-drive bursts: {motion_events:g} a day (from the motion scenarios) in the "
                             "average current", "design file"))
@@ -847,20 +857,22 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     life = None
     usable = 1.0
     if pack is not None:
-        usable = usable_fraction(pack, design.power.cutoff_voltage_V)
-        if usable < 1.0:
-            assumptions.append((
-                f"The electronics stop at {design.power.cutoff_voltage_V:g} V, above the pack's rated end voltage "
-                f"{pack.cutoff_voltage_V:g} V: usable fraction {usable:.3g}, falling linearly from 1 at the "
-                "rated end voltage to 0 at the nominal voltage (a cautious stand-in for the discharge curve)",
-                "(common practice)"))
+        # Site temperature, pulse sag and brown-out, fault drain: the pack comes back derated for the site.
+        energy = _energy_stage(design, pack, electronics, schedule, moves, temperature_C, budget.average_current_uA)
+        pack, usable = energy.pack, energy.usable
+        values.extend(energy.values)
+        checks.extend(energy.checks)
+        warns.extend(energy.warnings)
+        assumptions.extend(energy.assumptions)
         est = batt.estimate_life(pack, budget.average_current_uA, temperature_C=temperature_C,
-                                 usable_fraction=usable, peak_current_mA=budget.peak_current_mA)
+                                 usable_fraction=usable, peak_current_mA=budget.peak_current_mA,
+                                 self_discharge_per_year=pack.self_discharge_per_year)
         life = est.life_years
         add("battery", "Battery", f"{pack.name}", "", "battery")
-        add("battery_capacity_mAh", "Battery nominal capacity", pack.capacity_mAh, "mAh", "battery")
-        add("usable_fraction_percent", "Share of the capacity delivered above the electronics' cut-off",
-            100 * usable, "%", "battery")
+        add("battery_capacity_mAh", "Battery nominal capacity", pack.capacity_mAh, "mAh", "battery",
+            note=pack.cell.source_of("capacity_mAh"))
+        add("usable_fraction_percent", "Share of the capacity delivered before the largest pulse browns out "
+            "the electronics", 100 * usable, "%", "battery")
         add("usable_capacity_mAh", "Usable capacity after temperature and cut-off derating", est.usable_capacity_mAh,
             "mAh", "battery", equation="usable_capacity")
         add("battery_life_years", "Battery life", life, "years", "battery", equation="battery_life")
@@ -871,8 +883,8 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
         cautions.extend(c for c in est.cautions if c not in cautions)
         assumptions.append((f"Battery data for {pack.cell.name}: typical values at low drain", "; ".join(
             dict.fromkeys(src for _, src in pack.cell.sources)) or "user data"))
-        assumptions.append((f"Battery temperature {temperature_C:g} degC, linear self-discharge, "
-                            "8766 h per year", "(common practice)"))
+        assumptions.append(("Battery derated for the site: capacity at the coldest temperature, linear "
+                            "self-discharge at the year-mean rate, 8766 h per year", "(common practice)"))
         if req.battery_life_years is not None:
             advice = ""
             try:
@@ -896,13 +908,15 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
                     max_sleep = sleep_now + (allowed_uA - budget.average_current_uA) / asleep_share
                     add("max_sleep_current_uA", "Largest total sleep current that lasts the required life",
                         max_sleep, "uA", "battery", equation="battery_life",
-                        note=("negative: even zero sleep current cannot make the life; the wake-ups alone cost "
-                              "too much") if max_sleep < 0 else f"now {sleep_now:.3g} uA")
+                        note=("negative: even zero sleep current cannot make the life; the wake-ups and moves "
+                              "alone cost too much") if max_sleep < 0 else f"now {sleep_now:.3g} uA")
             except DesignValueError:
                 advice = (f"this chemistry cannot last {req.battery_life_years:g} years against its own "
                           "self-discharge: choose another chemistry")
             checks.append(_check("battery_life", "Battery lasts the required life", life, req.battery_life_years,
                                 "years", ">=", advice=advice))
+    if pack is not None:
+        values.append(_service_life(checks, life, energy.shelf_life_years, req.battery_life_years))
     host = design.power.host_supply
     budget_uA = req.quiescent_budget_uA
     if budget_uA is None and host is not None:
@@ -1040,6 +1054,9 @@ def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
         if design.requirements.battery_life_years is not None:
             hlines = (Series("required life", np.array([lo_s * 1e3, hi_s * 1e3]),
                              np.full(2, design.requirements.battery_life_years), style="dashed"),)
+        # The charge life cannot outlast the shelf life at the site: the life check uses the lower.
+        hlines = hlines + (Series("shelf life at the site", np.array([lo_s * 1e3, hi_s * 1e3]),
+                                  np.full(2, lc.shelf_life_years), style="dashed"),)
         series = series + hlines
     else:
         periods = np.geomspace(lo_s, hi_s, 120)
@@ -1659,3 +1676,271 @@ def latch_switch_spread_from_field(design: ActuatorDesign) -> tuple[float, float
     return latch_switch_spread_deg(b_latch, temps, operate_field_mT=lat.operate_field_mT,
                                    release_field_mT=lat.release_field_mT, threshold_spread_mT=lat.threshold_spread_mT,
                                    threshold_drift_pct_per_K=lat.threshold_drift_pct_per_K)
+
+
+# ---------------------------------------------------------------------------
+# energy: driven moves, site temperature, pulse sag, fault and shelf life
+# ---------------------------------------------------------------------------
+
+def _moves_stage(design: ActuatorDesign, train, profile) -> tuple:
+    """The motor's driven moves in the budget.
+
+    Returns ``(profile, moves, values)``: the profile with the motor (drawing
+    only while tracking) and the buffer capacitor's leakage added as
+    consumers, the :class:`~turnkit.power.MoveEnergy` (None without moves),
+    and the values to show.
+    """
+    p = design.power
+    extra = []
+    if p.buffer_leakage_uA:
+        extra.append(power.Consumer.constant("buffer capacitor leakage", p.buffer_leakage_uA))
+    moves = None
+    values: list[Value] = []
+    if p.moves_per_day:
+        unit = train.output_unit
+        stroke = p.move_stroke_mm if unit == "mm" else p.move_stroke_deg
+        if (p.move_stroke_deg if unit == "mm" else p.move_stroke_mm) is not None:
+            raise DesignValueError("power.move_stroke", p.move_stroke_deg if unit == "mm" else p.move_stroke_mm,
+                                   f"given in {unit} for this {'linear' if unit == 'mm' else 'rotary'} output")
+        if stroke is None:
+            req = design.requirements
+            stroke = req.stroke_mm if unit == "mm" else req.stroke_deg
+        if stroke is None:
+            raise DesignValueError("power.move_stroke", None, "given (or requirements.stroke)", unit=unit,
+                                   hint="the travel of one driven move sets the motor turns per move")
+        load = p.move_load_N if unit == "mm" else p.move_load_N_m
+        wrong = p.move_load_N_m if unit == "mm" else p.move_load_N
+        if wrong is not None:
+            raise DesignValueError("power.move_load", wrong,
+                                   "a force in N for a linear output" if unit == "mm"
+                                   else "a torque in N*m for a rotary output",
+                                   unit="N*m" if unit == "mm" else "N")
+        load = load or 0.0
+        work_J = load * stroke / 1000.0 if unit == "mm" else load * math.radians(stroke)
+        try:
+            moves = power.move_energy(
+                moves_per_day=p.moves_per_day, motor_turns_per_move=float(train.motor_turns_for_stroke(stroke)),
+                output_work_per_move_J=work_J, gear_efficiency=train.efficiency,
+                motor_speed_rpm=p.motor_speed_rpm, supply_voltage_V=profile.supply_voltage_V,
+                motor_current_mA=p.motor_current_mA, torque_constant_Nm_per_A=p.motor_torque_constant_N_m_per_A,
+                no_load_current_mA=p.motor_no_load_current_mA or 0.0)
+        except DesignValueError as exc:
+            raise _relabel(exc, "power") from None
+        extra.append(moves.consumer())
+        how = "given" if p.motor_current_mA is not None else "I_0 + T_motor / k_t"
+        values += [
+            Value("moves_per_day", "Driven moves per day", moves.moves_per_day, "", "power"),
+            Value("time_per_move_s", "Motor running time per move", moves.time_per_move_s, "s", "power",
+                  note=f"{moves.motor_turns_per_move:.4g} motor turns at {p.motor_speed_rpm:g} rpm"),
+            Value("motor_torque_Nm", "Motor torque while driving the load", moves.motor_torque_Nm, "N*m", "power",
+                  note=f"through the train's forward efficiency {train.efficiency:.3g}"),
+            Value("motor_current_mA", "Motor current while driving", moves.motor_current_mA, "mA", "power",
+                  note=how),
+            Value("energy_per_move_J", "Battery energy per move", moves.electrical_energy_per_move_J, "J", "power",
+                  note=f"{moves.charge_per_move_C:.4g} C; load work {moves.output_work_per_move_J:.4g} J at the "
+                       f"output, {moves.motor_work_per_move_J:.4g} J at the motor"),
+            Value("move_charge_per_day_mAh", "Motor charge per day", moves.charge_per_day_mAh, "mAh", "power"),
+        ]
+    if extra:
+        profile = power.CurrentProfile(profile.consumers + tuple(extra), profile.supply_voltage_V)
+    return profile, moves, values
+
+
+def _breakdown_values(budget) -> list[Value]:
+    """Where the average current goes, by consumer (the motor among them) and by state."""
+    total = budget.average_current_uA or 1.0
+    by_consumer = "; ".join(f"{n} {v:.3g} uA ({100 * v / total:.3g} %)" for n, v in budget.by_consumer().items())
+    by_state = "; ".join(f"{n} {v:.3g} uA" for n, v in budget.by_state().items() if v > 0)
+    return [Value("current_by_consumer", "Average current by consumer", by_consumer, "", "power"),
+            Value("current_by_state", "Average current by counter state", by_state, "", "power",
+                  note="tracking: while the motor is driven; fault and power lost are not in the daily budget")]
+
+
+def _move_warnings(moves, p=None) -> list[str]:
+    out = []
+    if moves is not None and moves.motor_efficiency > 1.0:
+        out.append(f"The motor current ({moves.motor_current_mA:.4g} mA) carries less energy than the load "
+                   f"needs at the motor shaft ({moves.motor_work_per_move_J:.4g} J a move against "
+                   f"{moves.electrical_energy_per_move_J:.4g} J drawn): check the current, the load or the motor "
+                   "speed.")
+    if moves is not None and p is not None and p.motor_torque_constant_N_m_per_A is not None:
+        # In SI units the back-EMF constant equals the torque constant (V per rad/s = N*m/A).
+        emf = p.motor_torque_constant_N_m_per_A * p.motor_speed_rpm * math.pi / 30.0
+        supply = moves.electrical_energy_per_move_J / moves.charge_per_move_C if moves.charge_per_move_C else 0.0
+        if emf >= supply:
+            out.append(f"At {p.motor_speed_rpm:g} rpm the motor's back-EMF (k_t * speed = {emf:.3g} V) reaches the "
+                       f"{supply:.3g} V supply: it cannot run that fast; check the motor speed or constants.")
+    return out
+
+
+@dataclass(frozen=True)
+class _EnergyReport:
+    pack: Any
+    usable: float
+    values: tuple
+    checks: tuple
+    warnings: tuple
+    assumptions: tuple
+    shelf_life_years: float
+
+
+def _pulses(profile_electronics, schedule, moves, p) -> list[tuple[str, float, float]]:
+    """(name, current mA, duration s) of the largest current pulses on the battery."""
+    totals = profile_electronics.state_totals_uA()
+    wake_mA = (max(totals["waking"], totals["polling"], totals["fast_polling"])
+               + sum(c.wake_pulse_uA for c in profile_electronics.consumers)) * 1e-3
+    awake_s = schedule.wake_time_s + schedule.settle_time_s + schedule.poll_time_s
+    out = [("wake-up and poll", wake_mA, awake_s)]
+    if moves is not None:
+        track_mA = totals["tracking"] * 1e-3
+        out.append(("motor running", track_mA + moves.motor_current_mA, moves.time_per_move_s))
+        if p.motor_start_current_mA is not None:
+            out.append(("motor start", track_mA + p.motor_start_current_mA, p.motor_start_time_ms * 1e-3))
+    return out
+
+
+def _energy_stage(design: ActuatorDesign, pack, profile_electronics, schedule, moves, temperature_C: float,
+                  average_current_uA: float) -> _EnergyReport:
+    """Site temperature, pulse sag and brown-out, fault drain and shelf life of a battery design.
+
+    Returns the battery derated for the site (capacity factor at the coldest
+    temperature, year-mean Arrhenius self-discharge, shelf life shortened alike),
+    the usable share of the capacity before the largest pulse browns the
+    electronics out (the count is lost there), the brown-out check with its
+    buffer-capacitor advice, and the values, warnings and assumptions to show.
+    """
+    b, p = design.battery, design.power
+    try:
+        site, derated = _site_pack(pack, temperature_C, b.temperature_min_degC, b.temperature_max_degC)
+    except DesignValueError as exc:
+        if not exc.field.endswith("temperature_C"):
+            raise
+        # Name the key the user wrote: an end of the site's range, or the one site temperature.
+        if b.temperature_min_degC is not None:
+            key = "battery.temperature_min" if exc.value == b.temperature_min_degC else "battery.temperature_max"
+        elif design.requirements.service_temperature_degC is not None:
+            key = "requirements.service_temperature"
+        else:
+            key = "battery.temperature"
+        raise DesignValueError(key, exc.value, exc.allowed, unit="degC", hint=exc.hint) from None
+    cutoff = p.cutoff_voltage_V if p.cutoff_voltage_V is not None else pack.cutoff_voltage_V
+    if cutoff >= pack.nominal_voltage_V:
+        raise DesignValueError("power.cutoff_voltage", cutoff,
+                               f"below the battery's nominal voltage ({pack.nominal_voltage_V:g} V for "
+                               f"{pack.name})", unit="V", hint="add cells in series or lower the cut-off")
+    r_ohm = batt.internal_resistance_ohm(pack, site.coldest_C)
+    c_uF = p.buffer_capacitance_uF or 0.0
+    pulses = _pulses(profile_electronics, schedule, moves, p)
+    sags = [float(batt.pulse_sag_V(i, t, r_ohm, c_uF)) for _, i, t in pulses]
+    worst = int(np.argmax(sags))
+    usable = float(batt.usable_fraction_under_pulse(pack, cutoff, sags[worst]))
+    values = [
+        Value("site_temperature_range_degC", "Site temperature, coldest to hottest",
+              f"{site.coldest_C:g} to {site.hottest_C:g}" if site.hottest_C > site.coldest_C
+              else f"{site.coldest_C:g}", "degC", "battery"),
+        Value("self_discharge_site_per_year_percent", "Self-discharge at the site (year mean, Arrhenius)",
+              100 * site.self_discharge_per_year, "%/year", "battery",
+              note=f"{site.self_discharge_factor:.3g} x the 20 degC value; activation energy "
+                   f"{site.activation_eV:g} eV"),
+        Value("shelf_life_site_years", "Shelf life at the site", site.shelf_life_years, "years", "battery",
+              note=f"{pack.shelf_life_years:g} years at 20 degC, shortened by the same factor when above 1"),
+        Value("internal_resistance_ohm", f"Battery internal resistance at {site.coldest_C:g} degC", r_ohm, "ohm",
+              "battery", note=pack.cell.source_of("resistance_curve") if pack.cell.resistance_curve else
+              "unknown for this cell: pulse sag not modelled"),
+        Value("largest_pulse_sag_V", f"Voltage sag under the largest pulse ({pulses[worst][0]})", sags[worst], "V",
+              "battery", note=f"{pulses[worst][1]:.4g} mA for {pulses[worst][2]:.4g} s"
+                              + (f", {c_uF:g} uF buffer" if c_uF else "")),
+    ]
+    warnings: list[str] = []
+    checks: list[Check] = []
+    # Brown-out: judged where the required life leaves the cell (or on a fresh cell).
+    req_life = design.requirements.battery_life_years
+    if req_life is not None:
+        drawn = (average_current_uA * 1e-3 * _HOURS_PER_YEAR + site.self_discharge_per_year * pack.capacity_mAh) \
+            * req_life
+        depth = min(drawn / (pack.capacity_mAh * site.temperature_factor), 1.0)
+        where = f"after {req_life:g} years ({100 * depth:.3g} % discharged)"
+    else:
+        depth, where = 0.0, "on a fresh battery"
+    v_open = float(batt.open_circuit_voltage_V(pack, depth))
+    loaded = v_open - sags[worst]
+    values.append(Value("min_supply_under_pulse_V", f"Lowest supply voltage under a pulse {where}",
+                        loaded, "V", "battery", note=f"cut-off {cutoff:g} V at {site.coldest_C:g} degC"))
+    if v_open > cutoff:
+        need = max(float(batt.buffer_capacitance_needed_uF(i, t, v_open - cutoff)) for _, i, t in pulses)
+        advice = (f"a buffer capacitor of at least {_capacitance_text(need)} across the battery "
+                  "(C >= I*t/dV for the largest pulse"
+                  + ("; at this size a supercapacitor, whose leakage adds to the sleep current: give "
+                     "buffer_leakage" if need >= 1e5 else "") + "), or cells with less internal resistance")
+    else:
+        advice = (f"the battery is below the {cutoff:g} V cut-off {where} even without load, so no capacitor "
+                  "helps: a larger battery or a lower average current (see the battery-life check)")
+    checks.append(_check("brown_out", f"Supply stays above the cut-off under the largest pulse {where}",
+                         loaded, cutoff, "V", ">=", advice=advice))
+    assumptions = [(f"The count is lost when the supply under the largest pulse ({pulses[worst][0]}, "
+                    f"{pulses[worst][1]:.4g} mA) at {site.coldest_C:g} degC falls to the {cutoff:g} V cut-off: usable "
+                    f"share {100 * usable:.3g} % of the rated capacity, from the cell's discharge curve and internal "
+                    "resistance", pack.cell.source_of("discharge_curve") if pack.cell.discharge_curve
+                    else "no discharge curve for this cell: straight line from nominal to end voltage (a stand-in)"),
+                   (f"Self-discharge {100 * pack.self_discharge_per_year:.3g} %/year at 20 degC times the year-mean "
+                    f"Arrhenius factor {site.self_discharge_factor:.3g} (activation energy {site.activation_eV:g} eV)"
+                    + (", the site a sine year between its coldest and hottest temperatures"
+                       if b.temperature_min_degC is not None else ""),
+                    pack.cell.source_of("self_discharge_activation_eV") if pack.cell.key in batt.available_cells()
+                    else "(common practice) doubling per +10 degC (derived, shown in docs/power.md)"),
+                   ("Fault: the firmware stops polling until re-homed (each consumer's fault current, the asleep "
+                    "current unless given); power lost: no current and the count is gone",
+                    "(derived, shown in docs/counter.md)")]
+    fault_uA = profile_electronics.state_totals_uA()["fault"]
+    usable_mAh = pack.capacity_mAh * site.temperature_factor * usable
+    days = power.time_to_flat_days(usable_mAh, fault_uA, site.self_discharge_per_year * pack.capacity_mAh)
+    values.append(Value("fault_current_uA", "Current while in fault (until re-homed)", fault_uA, "uA", "power"))
+    values.append(Value("fault_days_to_flat", "A fresh battery left in fault is flat after", days, "days", "battery"))
+    if fault_uA > profile_electronics.state_totals_uA()["asleep"] * 1.001:
+        warnings.append(f"In fault the electronics stay awake at {fault_uA:.4g} uA: a fresh battery is flat after "
+                        f"{days:.3g} days unless the actuator is re-homed; let the firmware sleep in fault, or "
+                        "re-home promptly.")
+    return _EnergyReport(derated, usable, tuple(values), tuple(checks), tuple(warnings), tuple(assumptions),
+                         site.shelf_life_years)
+
+
+@lru_cache(maxsize=64)
+def _site_pack(pack, temperature_C: float, temperature_min_C, temperature_max_C):
+    """The site derating and the pack derated for it (cached: slider moves rarely change either)."""
+    try:
+        site = batt.site_derating(pack, temperature_C, temperature_min_C=temperature_min_C,
+                                  temperature_max_C=temperature_max_C)
+    except DesignValueError as exc:
+        raise _relabel(exc, "battery") from None
+    if site.self_discharge_per_year >= 1.0:
+        raise DesignValueError("battery.temperature", site.hottest_C, "a cooler site",
+                               unit="degC", hint=f"self-discharge there is {site.self_discharge_per_year:.3g} "
+                                                 "of the capacity a year")
+    cell = replace(pack.cell, temperature_curve=((-273.0, site.temperature_factor), (1000.0, site.temperature_factor)),
+                   self_discharge_per_year=site.self_discharge_per_year, shelf_life_years=site.shelf_life_years)
+    return site, batt.Pack(cell, series=pack.series, parallel=pack.parallel)
+
+
+def _capacitance_text(uF: float) -> str:
+    if uF >= 1e6:
+        return f"{uF / 1e6:.3g} F"
+    if uF >= 1e3:
+        return f"{uF / 1e3:.3g} mF"
+    return f"{uF:.3g} uF"
+
+
+def _service_life(checks: list, life_years: float, shelf_years: float, required: float | None):
+    """The battery-life check judged on min(charge life, shelf life at the site)."""
+    service = min(life_years, shelf_years)
+    value = Value("service_life_years", "Battery service life: charge or shelf life at the site, whichever "
+                  "ends first", service, "years", "battery",
+                  note="shelf life" if shelf_years < life_years else "charge (to the brown-out point)")
+    for k, c in enumerate(checks):
+        if c.key == "battery_life":
+            advice = c.advice
+            if shelf_years < c.target:
+                advice = (f"the shelf life at this site is {shelf_years:.3g} years: no capacity or poll period "
+                          "makes the required life; choose a chemistry with a longer shelf life, a cooler place, "
+                          "or plan a battery change")
+            checks[k] = _check("battery_life", c.label, service, c.target, c.unit, c.comparison, advice=advice)
+    return value

@@ -278,6 +278,7 @@ def tunables_for(design: ActuatorDesign) -> tuple[Tunable, ...]:
         out.append(Tunable("battery.cells_parallel", "Cells in parallel", "", 1, 8, False, 1,
                            lambda d: d.battery.cells_parallel, _section_setter("battery", "cells_parallel"),
                            integer=True, group="battery"))
+    out.extend(_energy_tunables(design))
 
     r = design.requirements
     for attr, unit_, label in (("backdrive_speed_mm_per_s", "mm/s", "Required back-drive speed at the output (mm/s)"),
@@ -290,6 +291,48 @@ def tunables_for(design: ActuatorDesign) -> tuple[Tunable, ...]:
                                _section_setter("requirements", attr), group="requirements"))
     out.extend(_magnet_and_temperature_tunables(design))
     return tuple(out)
+
+
+def _energy_tunables(design: ActuatorDesign) -> list[Tunable]:
+    """Driven moves per day, the load, the motor's start current, and the site temperature
+    (the coldest, when a range is given)."""
+    out = []
+    p = design.power
+    if p.moves_per_day:
+        lo, hi = _span(p.moves_per_day, 0.05, 20.0, 0.001, 1000.0)
+        out.append(Tunable("power.moves_per_day", "Driven moves per day", "", lo, hi, True, 0.001,
+                           lambda d: d.power.moves_per_day, _section_setter("power", "moves_per_day"),
+                           group="power"))
+        for attr, unit_ in (("move_load_N", "N"), ("move_load_N_m", "N*m")):
+            value = getattr(p, attr)
+            if value:
+                lo, hi = _span(value, 0.05, 20.0, 1e-6, 1e6)
+                out.append(Tunable(f"power.{attr}", f"Load at the output while driving ({unit_})", unit_, lo, hi,
+                                   True, value / 1000.0, (lambda d, a=attr: getattr(d.power, a)),
+                                   _section_setter("power", attr), group="power"))
+        if p.motor_start_current_mA:
+            lo, hi = _span(p.motor_start_current_mA, 0.05, 20.0, 0.1, 1e6)
+            out.append(Tunable("power.motor_start_current_mA", "Motor start current (mA)", "mA", lo, hi, True,
+                               0.1, lambda d: d.power.motor_start_current_mA,
+                               _section_setter("power", "motor_start_current_mA"), group="power"))
+    b = design.battery
+    if b is not None:
+        attr = "temperature_degC" if b.temperature_min_degC is None else "temperature_min_degC"
+        value = getattr(b, attr)
+        hi = 85.0 if attr == "temperature_degC" else b.temperature_max_degC
+        lo = -40.0
+        if b.chemistry is not None:
+            from .battery import available_cells, cell
+
+            if b.chemistry in available_cells():
+                low_c, high_c = cell(b.chemistry).operating_range_C
+                lo, hi = max(lo, low_c), min(hi, high_c)
+        lo, hi = min(lo, value), max(hi, value)
+        label = "Site temperature (degC)" if attr == "temperature_degC" else "Coldest site temperature (degC)"
+        out.append(Tunable(f"battery.{attr}", label, "degC", lo, hi, False, 1.0,
+                           (lambda d, a=attr: getattr(d.battery, a)), _section_setter("battery", attr),
+                           group="battery"))
+    return out
 
 
 def tunable(design: ActuatorDesign, key: str) -> Tunable:

@@ -172,7 +172,7 @@ def _expected_after(tunable, period: float) -> tuple[str, str]:
     result = size(tunable.set(_demo_design(), period), base_dir=ROOT / "demo")
     curve = result.curve("life_vs_poll_period")
     marker = curve.markers[0]
-    return (result.value("battery_life_years").formatted(),
+    return (result.value("service_life_years").formatted(),
             f"{format_number(marker.x, curve.x_unit)} → {format_number(marker.y, curve.y_unit)}")
 
 

@@ -483,7 +483,7 @@ def test_demo_dashboard_follows_the_poll_period_slider(demo):
     assert dash.error == ""
     assert not np.allclose(np.array(fig.markers.data["x"], dtype=float), marker_before)
     assert dash.readouts["life"].value != readout_before
-    assert dash.result.value("battery_life_years").formatted() in dash.readouts["life"].value
+    assert dash.result.value("service_life_years").formatted() in dash.readouts["life"].value
 
 
 @pytest.mark.parametrize("demo", ["irrigation-gate-valve"], indirect=True)
@@ -511,7 +511,7 @@ def test_demo_battery_choice_is_a_drop_down_that_changes_the_life(demo):
     assert demo.error == ""
     assert demo.design.battery.chemistry == "li_socl2_aa"
     assert demo.result.value("battery_life_years").value > life_before
-    assert demo.result.value("battery_life_years").formatted() in demo.readouts["life"].value
+    assert demo.result.value("service_life_years").formatted() in demo.readouts["life"].value
 
 
 @pytest.mark.parametrize("demo", ["camera-crane-joint"], indirect=True)
@@ -568,3 +568,21 @@ def test_demo_airgap_grade_and_temperature_controls_drive_the_accuracy_and_field
     assert max(budget.series["worst case"].data["x"]) == 70.0
     demo.controls["magnet.grade"].value = "smco5"
     assert demo.design.magnet.grade == "smco5" and demo.error == ""
+
+
+@pytest.mark.parametrize("demo", ["irrigation-gate-valve"], indirect=True)
+def test_demo_moves_load_and_cold_move_the_life_and_its_checks(demo):
+    # The gate valve passes with little to spare: daily moves, a heavier gate or a colder site fail.
+    assert demo.result.check("battery_life").passed and demo.result.check("brown_out").passed
+    life_before = demo.readouts["life"].value
+    for key, value, fails in (("power.moves_per_day", 1.0, "battery_life"),
+                              ("power.move_load_N", 80.0, "brown_out"),
+                              ("power.motor_start_current_mA", 3000.0, "brown_out"),
+                              ("battery.temperature_min_degC", -25.0, "brown_out")):
+        demo.reset()
+        demo.set(**{key: value})
+        assert demo.error == ""
+        assert demo.readouts["life"].value != life_before
+        assert not demo.result.check(fails).passed
+        row = demo.requirements.value.split(f"data-key='{fails}'")[1].split("</tr>")[0]
+        assert "FAIL" in row

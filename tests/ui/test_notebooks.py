@@ -36,7 +36,7 @@ slider.value = slider.value * 2 if slider.value * 2 <= 10 ** slider.max else sli
 assert dashboard.error == "", dashboard.error
 assert dashboard.readouts["life"].value != life_before
 assert not np.allclose(np.array(marker.data["x"], dtype=float), x_before)
-assert dashboard.result.value("battery_life_years").formatted() in dashboard.readouts["life"].value
+assert dashboard.result.value("service_life_years").formatted() in dashboard.readouts["life"].value
 print("check passed:", key, slider.value)
 """
 

@@ -73,7 +73,7 @@ READOUTS: tuple[Readout, ...] = (
     Readout("max-period", "longest poll period", ("max_poll_period_ms",)),
     Readout("duty", "duty cycle", ("duty_cycle_percent",)),
     Readout("current", "average current", ("average_current_uA",)),
-    Readout("life", "battery life", ("battery_life_years",)),
+    Readout("life", "battery life", ("service_life_years", "battery_life_years")),
 )
 
 #: Width of one step of a logarithmic slider, in decades (about 1.2 %).
