@@ -606,10 +606,40 @@ class LatchDesign(_Section):
                   units=("deg",), low=0.0, high=90.0, high_open=True, default=2.0),
         FieldSpec("magnet_misalignment", "quantity", "angle between the magnet's poles and the latch positions",
                   units=("deg",), low=-45.0, high=45.0, default=0.0),
+        FieldSpec("powered", "choice", "when the latches have power: only around each poll (during_polls; "
+                  "inside its hysteresis a latch may then wake in either state) or all the time (always)",
+                  choices=("during_polls", "always"), default="during_polls"),
+        FieldSpec("edge_shift_0", "quantity", "one unit's actual shift of the latch edge at 0 deg, for "
+                  "simulating that unit (all four edge shifts or none; omitted: the worst case inside the "
+                  "tolerances)", units=("deg",), low=-45.0, high=45.0, low_open=True, high_open=True),
+        FieldSpec("edge_shift_90", "quantity", "one unit's actual shift of the latch edge at 90 deg",
+                  units=("deg",), low=-45.0, high=45.0, low_open=True, high_open=True),
+        FieldSpec("edge_shift_180", "quantity", "one unit's actual shift of the latch edge at 180 deg",
+                  units=("deg",), low=-45.0, high=45.0, low_open=True, high_open=True),
+        FieldSpec("edge_shift_270", "quantity", "one unit's actual shift of the latch edge at 270 deg",
+                  units=("deg",), low=-45.0, high=45.0, low_open=True, high_open=True),
     )
     switch_point_tolerance_deg: float = 5.0
     hysteresis_deg: float = 2.0
     magnet_misalignment_deg: float = 0.0
+    powered: str = "during_polls"
+    edge_shift_0_deg: float | None = None
+    edge_shift_90_deg: float | None = None
+    edge_shift_180_deg: float | None = None
+    edge_shift_270_deg: float | None = None
+
+    @property
+    def edge_shifts_deg(self) -> tuple[float, float, float, float] | None:
+        """The unit's four edge shifts (deg), or None when not given."""
+        shifts = (self.edge_shift_0_deg, self.edge_shift_90_deg, self.edge_shift_180_deg, self.edge_shift_270_deg)
+        return None if shifts[0] is None else shifts
+
+    def _check_together(self) -> None:
+        names = ("edge_shift_0_deg", "edge_shift_90_deg", "edge_shift_180_deg", "edge_shift_270_deg")
+        given = [n for n in names if getattr(self, n) is not None]
+        if given and len(given) != 4:
+            missing = [n for n in names if getattr(self, n) is None]
+            _fail(self, missing[0], None, "given with the other edge shifts (all four or none)", unit="deg")
 
 
 @dataclass(frozen=True, slots=True)
@@ -899,6 +929,9 @@ class Requirements(_Section):
                   low=0.0, low_open=True),
         FieldSpec("service_temperature", "quantity", "temperature the requirements must hold at",
                   units=("degC",), low=-60.0, high=125.0),
+        FieldSpec("counting_margin", "fraction", "share of the counter's speed bound left unused at the "
+                  "required back-drive speed (default 30 %: count at no more than 70 % of the bound, "
+                  "common practice)", low=0.0, high=1.0, high_open=True, default=0.3),
     )
     stroke_mm: float | None = None
     stroke_deg: float | None = None
@@ -911,6 +944,7 @@ class Requirements(_Section):
     battery_life_years: float | None = None
     quiescent_budget_uA: float | None = None
     service_temperature_degC: float | None = None
+    counting_margin: float = 0.3
 
 
 # --- the whole design ------------------------------------------------------------

@@ -63,7 +63,7 @@ from typing import Any
 import numpy as np
 
 from . import __version__
-from . import angle_error, battery as batt, bounds, gears, latches as latch_mod, power
+from . import angle_error, battery as batt, counting, gears, latches as latch_mod, power
 from . import sensor as sensor_mod
 from . import simulation as sim
 from .counter import CounterSettings
@@ -196,13 +196,7 @@ def build_sensor(design: ActuatorDesign) -> sensor_mod.BridgeSensor:
 
 def build_latches(design: ActuatorDesign) -> latch_mod.QuadrantLatches:
     """The :class:`~turnkit.latches.QuadrantLatches` of a design."""
-    lt = design.latches
-    try:
-        return latch_mod.QuadrantLatches(switch_point_tolerance_deg=lt.switch_point_tolerance_deg,
-                                         hysteresis_deg=lt.hysteresis_deg,
-                                         magnet_misalignment_deg=lt.magnet_misalignment_deg)
-    except DesignValueError as exc:
-        raise _relabel(exc, "latches") from None
+    return counting.latches_of(design)
 
 
 def build_counter(design: ActuatorDesign) -> CounterSettings:
@@ -224,8 +218,9 @@ def build_schedule(design: ActuatorDesign):
     try:
         if s.kind == "adaptive":
             fast_s = s.fast_poll_period_ms / 1e3
+            # The jitter is a fraction of each poll period, so each period has its own.
             return AdaptiveSchedule(poll_period_s=period_s, fast_period_s=fast_s, hold_s=s.hold_time_s,
-                                    jitter_s=s.jitter * fast_s, **common)
+                                    jitter_s=s.jitter * period_s, fast_jitter_s=s.jitter * fast_s, **common)
         return FixedSchedule(poll_period_s=period_s, jitter_s=s.jitter * period_s, **common)
     except DesignValueError as exc:
         raise _relabel(exc, "schedule") from None
@@ -454,10 +449,11 @@ def _sensor_of(sensor_design):
 
 
 @lru_cache(maxsize=512)
-def _simulate_scenario(sc: MotionScenario, stages: tuple, schedule, settings, base_dir: str | None):
+def _simulate_scenario(sc: MotionScenario, stages: tuple, schedule, settings, base_dir: str | None,
+                       edges: tuple | None = None):
     train = _train_cached(stages)[0]
     prof, duration, peak = build_motion(sc, train, Path(base_dir) if base_dir else None)
-    result = sim.simulate(prof, schedule, duration, settings)
+    result = sim.simulate(prof, schedule, duration, settings, edge_shifts_deg=edges)
     return result, peak
 
 
@@ -775,16 +771,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
 
     # -- schedule and speed bounds -------------------------------------------
     schedule = build_schedule(design)
-    guaranteed_rpm = bounds.schedule_speed_limit_rpm(schedule)
-    silent_rpm = bounds.silent_error_speed_rpm(bounds.worst_interval_s(schedule))
     add("poll_period_ms", "Poll period while asleep", design.schedule.poll_period_ms, "ms", "schedule")
-    add("trackable_motor_speed_rpm", "Fastest motor speed always counted right while asleep", guaranteed_rpm,
-        "rpm", "schedule", equation="max_trackable_speed")
-    out_speed, out_speed_unit = output_speed_for_motor_rpm(guaranteed_rpm, train)
-    add("trackable_output_speed", "Fastest output speed always counted right while asleep", out_speed,
-        out_speed_unit, "schedule")
-    add("silent_error_motor_speed_rpm", "Motor speed above which miscounts can be silent", silent_rpm, "rpm",
-        "schedule", equation="silent_error_onset_speed")
     awake_s = schedule.wake_time_s + schedule.settle_time_s + schedule.poll_time_s
     add("duty_cycle_percent", "Duty cycle (awake share while idle)", 100 * awake_s / schedule.poll_period_s, "%",
         "schedule", equation="duty_cycle")
@@ -794,20 +781,19 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
         raise DesignValueError("requirements.backdrive_speed", wrong_speed,
                                "given in mm/s for a linear output, rpm for a rotary one",
                                unit="rpm" if unit == "mm" else "mm/s")
-    max_period_s = None
     required_rpm = None
     if req_speed is not None:
         required_rpm = motor_rpm_for_output_speed(req_speed, train, "mm/s" if unit == "mm" else "rpm",
                                                   "requirements.backdrive_speed")
-        max_period_s = bounds.max_poll_period_s(required_rpm)
-        add("backdrive_motor_speed_rpm", "Motor speed at the required back-drive speed", required_rpm, "rpm",
-            "schedule", equation="backdrive_motor_speed")
-        add("max_poll_period_ms", "Longest poll period for the required back-drive speed", max_period_s * 1e3,
-            "ms", "schedule", equation="max_poll_period")
-        checks.append(_check("backdrive_speed", "Counter follows the required back-drive speed while asleep",
-                            out_speed, req_speed, out_speed_unit, ">=",
-                            advice=f"poll at least every {max_period_s * 1e3:.4g} ms (with jitter included), "
-                                   "or lower the reduction"))
+    # Counting with real latches (turnkit.counting): limits, the back-drive check and its advice.
+    limits = counting.counting_limits(design)
+    out_per_rpm, out_speed_unit = output_speed_for_motor_rpm(1.0, train)
+    report = counting.backdrive_report(design, limits, required_rpm, req_speed, out_speed_unit, out_per_rpm,
+                                       float(ratio))
+    values.extend(report.values)
+    eq_keys.extend(v.equation for v in report.values if v.equation)
+    checks.extend([report.check] if report.check is not None else [])
+    guaranteed_rpm, max_period_s = limits.trackable_rpm, report.max_poll_period_s
 
     # -- power and battery ---------------------------------------------------
     pack = build_battery(design)
@@ -921,35 +907,28 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
                 f"longest that follows {req_speed:g} {out_speed_unit}) lasts only {life_at_limit:.3g} years "
                 f"against {req.battery_life_years:g} required.")
             warns.extend(_relax_lines(profile, pack, schedule, required_rpm, req.battery_life_years, temperature_C,
-                                      train, usable))
+                                      train, usable, limits=limits))
 
     # -- motion scenarios ---------------------------------------------------------
     scenarios: list[Scenario] = []
     base = str(Path(base_dir).resolve()) if base_dir is not None else None
+    edges = counting.unit_edge_shifts_deg(design)
     if simulate:
         for sc in design.motion:
-            result, peak = _simulate_scenario(sc, stages, schedule, settings, base)
-            _, err = result.output_error(train)
-            max_err = float(np.max(np.abs(err))) if np.size(err) else 0.0
-            note = ""
-            if result.silent_error_count:
-                note = "silent miscounts: the count is wrong with no error flagged"
-            elif result.ambiguous_count:
-                note = "ambiguous steps flagged: position no longer trusted, re-homing needed"
-            elif peak > guaranteed_rpm:
-                note = "faster than the guaranteed bound at times, but counted right in this run"
-            scenarios.append(Scenario(
-                name=sc.name, kind=sc.kind, duration_s=result.duration_s, peak_motor_speed_rpm=peak,
-                polls=result.poll_count, final_count_error_qt=result.final_count_error,
-                ambiguous_count=result.ambiguous_count, silent_error_count=result.silent_error_count,
-                overflow_count=result.overflow_count, max_output_error=max_err, output_unit=unit, note=note))
+            result, peak = _simulate_scenario(sc, stages, schedule, settings, base, edges)
+            scenarios.append(counting.scenario_row(design, sc, result, peak, train, limits, unit,
+                                                   _scenario_peak_to_peak(sc, train)))
 
     # -- curves ----------------------------------------------------------------
     curve_list: list[Curve] = []
     if curves:
+        # The limit line and shading count every speed (requirement and scenarios) with the margin.
+        allowed_s, allowed_why = counting.allowed_poll_period_s(limits, required_rpm,
+                                                                _scenario_peaks(design, stages, base))
         curve_list.extend(_curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
-                                  max_period_s, required_rpm, req_speed, out_speed_unit, temperature_C,
-                                  guaranteed_rpm, resolution_out, base, usable))
+                                  allowed_s, required_rpm, req_speed, out_speed_unit, temperature_C,
+                                  guaranteed_rpm, resolution_out, base, usable, edges=edges,
+                                  limit_note=(allowed_why, limits.margin)))
         if sweep_curve is not None:
             curve_list.append(sweep_curve)
 
@@ -968,8 +947,11 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
         warnings=tuple(dict.fromkeys(warns)),
         cautions=tuple(dict.fromkeys(cautions)),
         assumptions=tuple(assumptions) + (
-            ("Guaranteed counting: less than a quarter-turn of the motor between two polls, any phase",
-             "2-bit Gray code, one bit changes per step: F. Gray, US patent 2,632,058 (1953)"),
+            ("Counted by the model: at most the narrowest quadrant between two latch edges (worst unit inside "
+             "the latch tolerances) between two polls, any phase, the longest interval between polls "
+             "including jitter",
+             "2-bit Gray code, one bit changes per step: F. Gray, US patent 2,632,058 (1953); narrowest "
+             "quadrant (derived, shown in docs/counter.md)"),
             ("Gear ratios are exact fractions of tooth counts; lengths are taken at their decimal value",
              "Shigley's Mechanical Engineering Design, ch. 13"),
         ),
@@ -978,7 +960,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
 
 
 def _relax_lines(profile, pack, schedule, required_rpm, life_years, temperature_C, train,
-                 usable: float = 1.0) -> list[str]:
+                 usable: float = 1.0, limits=None) -> list[str]:
     """How far each requirement must move for some poll period to meet both (symbolic model)."""
     from .equations import relax_advice
 
@@ -993,7 +975,9 @@ def _relax_lines(profile, pack, schedule, required_rpm, life_years, temperature_
             sleep_current_uA=totals["asleep"], awake_current_uA=awake_uA, awake_time_s=t_awake,
             temperature_derating=float(pack.temperature_factor(temperature_C)), usable_fraction=usable,
             self_discharge_per_year=pack.self_discharge_per_year,
-            travel_per_turn=float(train.travel_per_motor_turn), output_unit=train.output_unit)
+            travel_per_turn=float(train.travel_per_motor_turn), output_unit=train.output_unit,
+            **({} if limits is None else dict(narrowest_quadrant_deg=limits.widths.narrowest_quadrant_deg,
+                                              jitter=limits.jitter, margin=limits.margin)))
     except DesignValueError as exc:
         return [f"Relaxation advice unavailable: {exc}"]
     rec = advice.recommended
@@ -1002,7 +986,8 @@ def _relax_lines(profile, pack, schedule, required_rpm, life_years, temperature_
 
 
 def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw, max_period_s, required_rpm,
-            req_speed, speed_unit, temperature_C, guaranteed_rpm, resolution_out, base, usable=1.0) -> list[Curve]:
+            req_speed, speed_unit, temperature_C, guaranteed_rpm, resolution_out, base, usable=1.0, edges=None,
+            limit_note=("the required back-drive speed", 0.0)) -> list[Curve]:
     unit = train.output_unit
     out: list[Curve] = []
     period_ms = schedule.poll_period_s * 1e3
@@ -1038,12 +1023,13 @@ def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
     if max_period_s is not None:
         vlines = (Marker("longest allowed poll period", max_period_s * 1e3, 0.0),)
         if max_period_s < hi_s:
-            bands = (Band("misses back-drive", max_period_s * 1e3, hi_s * 1e3),)
+            bands = (Band("not counted with the margin", max_period_s * 1e3, hi_s * 1e3),)
     out.append(Curve(key, title, "poll period", "ms", ylab, yunit, series,
                      markers=(Marker("this design", period_ms, marker_y),), bands=bands, vlines=vlines,
                      log_x=True, log_y=True,
-                     note=(f"longest poll period for the required back-drive speed: {max_period_s * 1e3:.4g} ms"
-                           if max_period_s is not None else "no back-drive speed required")))
+                     note=(f"longest poll period counting every speed with {limit_note[1] * 100:.3g} % margin "
+                           f"(latch tolerances and jitter included): {max_period_s * 1e3:.4g} ms, set by "
+                           f"{limit_note[0]}" if max_period_s is not None else "no back-drive speed required")))
 
     # (b) a simulated back-drive event at the required speed (or the fastest scenario's)
     speed_rpm = required_rpm
@@ -1056,7 +1042,7 @@ def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
     move_s = max(duration - 2.5 * schedule.poll_period_s, schedule.poll_period_s)
     prof = ConstantSpeed(speed_rpm=speed_rpm, start_s=1.3 * schedule.poll_period_s, duration_s=move_s)
     res = sim.simulate(prof, schedule, duration, settings,
-                       trace_window_s=(0.0, duration), trace_max_polls=200)
+                       trace_window_s=(0.0, duration), trace_max_polls=200, edge_shifts_deg=edges)
     t_ms = res.trace_time_s * 1e3
     true_q = res.trace_angle_deg / 90.0
     amb_t = np.asarray(res.ambiguous_events.times_s, dtype=float) if res.ambiguous_count else np.array([])
@@ -1125,3 +1111,33 @@ def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
                      note=f"peak {np.max(np.abs(summary.error_before_deg)):.3g} deg before, "
                           f"{np.max(np.abs(summary.error_after_deg)):.3g} deg after calibration"))
     return out
+
+
+# ---------------------------------------------------------------------------
+# scenario speeds for the counting limits
+# ---------------------------------------------------------------------------
+
+def _scenario_peak_to_peak(sc: MotionScenario, train) -> float | None:
+    """Peak-to-peak motor angle of a vibration scenario, deg (None for other kinds)."""
+    if sc.kind != "vibration":
+        return None
+    amp = _scenario_motor(sc, train, "amplitude")[0]
+    return None if amp is None else 2.0 * abs(amp)
+
+
+@lru_cache(maxsize=256)
+def _scenario_peak(sc: MotionScenario, stages: tuple, base_dir: str | None) -> float:
+    train = _train_cached(stages)[0]
+    return float(build_motion(sc, train, Path(base_dir) if base_dir else None)[2])
+
+
+def _scenario_peaks(design: ActuatorDesign, stages: tuple, base_dir: str | None) -> tuple:
+    """(name, kind, peak motor rpm, peak-to-peak motor deg or None) of every scenario that can be built."""
+    train = _train_cached(stages)[0]
+    out = []
+    for sc in design.motion:
+        try:
+            out.append((sc.name, sc.kind, _scenario_peak(sc, stages, base_dir), _scenario_peak_to_peak(sc, train)))
+        except (DesignValueError, OSError, ValueError):
+            continue  # a scenario that cannot be built is reported where it is simulated
+    return tuple(out)
