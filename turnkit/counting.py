@@ -170,12 +170,12 @@ def _poll_change(design, period_s: float, why: str) -> DesignChange | None:
     t_ms = _floor_sig(period_s * 1e3)
     s = design.schedule
     changes = [("schedule", "poll_period_ms", t_ms)]
-    text = f"poll at least every {t_ms:.4g} ms{why}"
+    text = f"poll at least every {t_ms:.4g} ms"
     if s.kind == "adaptive" and s.fast_poll_period_ms >= t_ms:
         fast = _floor_sig(t_ms * s.fast_poll_period_ms / s.poll_period_ms)
         changes.append(("schedule", "fast_poll_period_ms", fast))
         text += f" (fast polls every {fast:.4g} ms)"
-    change = DesignChange(text, tuple(changes))
+    change = DesignChange(text + why, tuple(changes))
     return change if _valid(design, change) else None
 
 
@@ -260,7 +260,10 @@ def backdrive_report(design, limits: CountingLimits, required_rpm: float | None,
     ]
     label = (f"Required back-drive speed counted by the model with at least {m_req * 100:.3g} % margin "
              "while asleep")
-    check = Check("backdrive_speed", label, trackable_out * (1.0 - m_req), float(req_speed), out_speed_unit, ">=")
+    counted = trackable_out * (1.0 - m_req)
+    if abs(counted - req_speed) <= 1e-12 * abs(req_speed):
+        counted = float(req_speed)  # the bound is inclusive: exactly at it passes, whatever the last bit
+    check = Check("backdrive_speed", label, counted, float(req_speed), out_speed_unit, ">=")
     changes: list[DesignChange] = []
     if not check.passed:
         why = f" (counts {req_speed:g} {out_speed_unit} with {m_req * 100:.3g} % margin, jitter included)"

@@ -1141,3 +1141,44 @@ def _scenario_peaks(design: ActuatorDesign, stages: tuple, base_dir: str | None)
         except (DesignValueError, OSError, ValueError):
             continue  # a scenario that cannot be built is reported where it is simulated
     return tuple(out)
+
+
+def counting_advice(design: ActuatorDesign, *, base_dir: str | Path | None = None) -> dict:
+    """The followable counting advice of a design, as design changes.
+
+    Computed by the same functions as the back-drive check and the scenario
+    rows of :func:`size`, so each change makes its check pass when applied
+    (``change.apply(design)``, then size again).
+
+    Parameters
+    ----------
+    design : ActuatorDesign
+    base_dir : path, optional
+        Folder that relative trace paths are relative to.
+
+    Returns
+    -------
+    dict
+        ``{"backdrive_speed": (DesignChange, ...), "scenario:<name>": (DesignChange, ...)}``, only for
+        what fails.
+    """
+    train = build_train(design)
+    req = design.requirements
+    req_speed = req.backdrive_speed_mm_per_s if train.output_unit == "mm" else req.backdrive_speed_rpm
+    limits = counting.counting_limits(design)
+    out: dict = {}
+    if req_speed is not None:
+        rpm = motor_rpm_for_output_speed(req_speed, train, "mm/s" if train.output_unit == "mm" else "rpm",
+                                         "requirements.backdrive_speed")
+        per_rpm, speed_unit = output_speed_for_motor_rpm(1.0, train)
+        report = counting.backdrive_report(design, limits, rpm, req_speed, speed_unit, per_rpm, float(train.ratio))
+        if report.changes:
+            out["backdrive_speed"] = report.changes
+    result = size(design, base_dir=base_dir, curves=False)
+    for row, sc in zip(result.scenarios, design.motion):
+        if not row.passed:
+            changes = counting.scenario_changes(design, limits, sc.kind, row.peak_motor_speed_rpm,
+                                                row.overflow_count > 0, _scenario_peak_to_peak(sc, train))
+            if changes:
+                out[f"scenario:{sc.name}"] = changes
+    return out

@@ -1,0 +1,94 @@
+"""Counting with real latches: the back-drive check, its margin and advice that passes when applied."""
+
+import dataclasses
+from pathlib import Path
+
+import pytest
+
+from turnkit.designfile import load_design
+from turnkit.sizing import counting_advice, size
+
+DEMO = Path(__file__).resolve().parents[1] / "demo"
+DEMOS = sorted(DEMO.glob("*.toml"))
+
+
+def _variants(design):
+    """The demo itself and a few ways of breaking its counting."""
+    s, lt = design.schedule, design.latches
+    yield "as is", design
+    yield "slow polls", dataclasses.replace(design, schedule=dataclasses.replace(
+        s, poll_period_ms=s.poll_period_ms * 3))
+    yield "loose latches", dataclasses.replace(design, latches=dataclasses.replace(
+        lt, switch_point_tolerance_deg=min(lt.switch_point_tolerance_deg * 2 + 8, 30.0)))
+    yield "jittery timer", dataclasses.replace(design, schedule=dataclasses.replace(
+        s, poll_period_ms=s.poll_period_ms * 2, jitter=0.2))
+
+
+CASES = [(path, name) for path in DEMOS for name, _ in _variants(load_design(path))]
+
+
+@pytest.mark.parametrize("path, variant", CASES, ids=[f"{p.stem}-{v}" for p, v in CASES])
+def test_every_piece_of_counting_advice_passes_when_applied(path, variant):
+    design = dict(_variants(load_design(path)))[variant]
+    result = size(design, base_dir=path.parent, curves=False)
+    advice = counting_advice(design, base_dir=path.parent)
+    check = next((c for c in result.checks if c.key == "backdrive_speed"), None)
+    if check is not None and not check.passed:
+        assert check.advice
+        for change in advice.get("backdrive_speed", ()):
+            assert change.text in check.advice  # the advice shown is the advice applied
+            fixed = size(change.apply(design), base_dir=path.parent, curves=False, simulate=False)
+            assert fixed.check("backdrive_speed").passed, change.text
+    else:
+        assert "backdrive_speed" not in advice
+    for row in result.scenarios:
+        if row.passed:
+            continue
+        assert "to fix:" in row.note
+        for change in advice.get(f"scenario:{row.name}", ()):
+            assert change.text in row.note
+            fixed = size(change.apply(design), base_dir=path.parent, curves=False)
+            assert next(r for r in fixed.scenarios if r.name == row.name).passed, change.text
+
+
+def test_the_window_shade_fails_at_its_own_latch_tolerances_with_the_old_poll_period():
+    # 10 deg tolerance, 4 deg hysteresis, latches powered per poll: narrowest quadrant 66 deg.
+    # At a 6 ms slow period 30 rpm at the output (1920 rpm at the motor, 69.1 deg per poll) is
+    # beyond even the bound without margin (66 / (6 * 0.006) = 1833 rpm).
+    design = load_design(DEMO / "window-shade-winder.toml")
+    old = dataclasses.replace(design, schedule=dataclasses.replace(design.schedule, poll_period_ms=6.0))
+    result = size(old, base_dir=DEMO, curves=False, simulate=False)
+    assert result.value("narrowest_quadrant_deg").value == 66.0
+    assert result.value("trackable_motor_speed_rpm").value == pytest.approx(66.0 / 0.036)
+    assert not result.check("backdrive_speed").passed
+    assert result.value("backdrive_counting_margin_percent").value < 0
+
+
+@pytest.mark.parametrize("path", DEMOS, ids=[p.stem for p in DEMOS])
+def test_demo_checks_move_when_the_latch_tolerance_moves(path):
+    design = load_design(path)
+    loose = dataclasses.replace(design, latches=dataclasses.replace(
+        design.latches, switch_point_tolerance_deg=design.latches.switch_point_tolerance_deg + 5.0))
+    a = size(design, base_dir=path.parent, curves=False, simulate=False)
+    b = size(loose, base_dir=path.parent, curves=False, simulate=False)
+    assert b.value("narrowest_quadrant_deg").value == a.value("narrowest_quadrant_deg").value - 10.0
+    assert b.value("trackable_motor_speed_rpm").value < a.value("trackable_motor_speed_rpm").value
+    if "max_poll_period_ms" in {v.key for v in a.values}:
+        assert b.value("max_poll_period_ms").value < a.value("max_poll_period_ms").value
+        assert b.check("backdrive_speed").margin < a.check("backdrive_speed").margin
+
+
+def test_the_check_uses_the_required_margin_and_says_so():
+    design = load_design(DEMO / "irrigation-gate-valve.toml")
+    result = size(design, base_dir=DEMO, curves=False, simulate=False)
+    margin = result.value("backdrive_counting_margin_percent")
+    assert "counted by the model with" in margin.note
+    limit = result.value("max_poll_period_ms").value
+    # At exactly the poll period the advice names, the margin is the one asked for (inclusive).
+    at = dataclasses.replace(design, schedule=dataclasses.replace(design.schedule, poll_period_ms=limit))
+    res = size(at, base_dir=DEMO, curves=False, simulate=False)
+    assert res.check("backdrive_speed").passed
+    assert res.value("backdrive_counting_margin_percent").value == pytest.approx(30.0, rel=1e-9)
+    past = dataclasses.replace(design, schedule=dataclasses.replace(design.schedule, poll_period_ms=limit * 1.01))
+    assert not size(past, base_dir=DEMO, curves=False, simulate=False).check("backdrive_speed").passed
+    assert all("always counted right" not in v.label for v in result.values)
