@@ -92,3 +92,21 @@ def test_the_check_uses_the_required_margin_and_says_so():
     past = dataclasses.replace(design, schedule=dataclasses.replace(design.schedule, poll_period_ms=limit * 1.01))
     assert not size(past, base_dir=DEMO, curves=False, simulate=False).check("backdrive_speed").passed
     assert all("always counted right" not in v.label for v in result.values)
+
+
+def test_a_friction_belt_carries_creep_in_the_accuracy_with_a_warning():
+    from turnkit import design as d
+    from turnkit.sizing import BELT_CREEP_FRACTION
+
+    base = load_design(DEMO / "irrigation-gate-valve.toml")
+    belt = d.BeltStage(pitch_diameter_driver_mm=20.0, pitch_diameter_driven_mm=40.0)
+    slipping = dataclasses.replace(base, gear_train=(belt,) + tuple(base.gear_train))
+    toothed = dataclasses.replace(base, gear_train=(d.BeltStage(teeth_driver=20, teeth_driven=40),)
+                                  + tuple(base.gear_train))
+    a = size(toothed, base_dir=DEMO, curves=False, simulate=False)
+    b = size(slipping, base_dir=DEMO, curves=False, simulate=False)
+    stroke = base.requirements.stroke_mm
+    assert b.value("output_accuracy").value == pytest.approx(
+        a.value("output_accuracy").value + BELT_CREEP_FRACTION * stroke)
+    assert any("friction belt" in w for w in b.warnings)
+    assert not any("friction belt" in w for w in a.warnings)

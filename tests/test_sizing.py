@@ -214,11 +214,15 @@ stroke = "100 mm"
 
 
 def test_self_locking_train_gets_the_creep_caution_and_backdriving_train_the_runaway_caution(small):
-    locking = size(small, curves=False)
-    # A sliding screw without a mean diameter is assumed self-locking (and said to be unknown).
+    unknown = size(small, curves=False)
+    # A sliding screw without a mean diameter is assumed to back-drive (and said to be unknown):
+    # the cautious side for a counter that must see every back-drive.
+    assert unknown.value("can_backdrive").value is True
+    assert any("back-drives" in c for c in unknown.cautions)
+    assert any("unknown" in w and "assumed to back-drive" in w for w in unknown.warnings)
+    locking = size(load_design(DEMO / "irrigation-gate-valve.toml"), base_dir=DEMO, curves=False, simulate=False)
     assert locking.value("can_backdrive").value is False
     assert any("creep" in c for c in locking.cautions)
-    assert any("unknown" in w for w in locking.warnings)
     shade = size(load_design(DEMO / "window-shade-winder.toml"), base_dir=DEMO, curves=False)
     assert shade.value("can_backdrive").value is True
     assert any("back-drives" in c for c in shade.cautions)

@@ -739,8 +739,13 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     add("output_resolution", "Output resolution", resolution_out, unit, "sensor", equation="output_resolution")
     sensor_err_out = train.output_resolution(motor_peak)
     accuracy_out = sensor_err_out + train.backlash_at_output()
-    add("output_accuracy", "Output accuracy (sensor peak error + backlash)", accuracy_out, unit, "sensor",
-        note=f"sensor {sensor_err_out:.3g} {unit} + backlash {train.backlash_at_output():.3g} {unit}")
+    creep_out, creep_warns = _belt_creep(train, stroke)   # friction belts slip: creep over the stroke
+    accuracy_out += creep_out
+    warns.extend(creep_warns)
+    add("output_accuracy", "Output accuracy (sensor peak error + backlash"
+        + (" + belt creep)" if creep_warns else ")"), accuracy_out, unit, "sensor",
+        note=f"sensor {sensor_err_out:.3g} {unit} + backlash {train.backlash_at_output():.3g} {unit}"
+             + (f" + belt creep {creep_out:.3g} {unit}" if creep_warns else ""))
     target_res = req.output_resolution_mm if unit == "mm" else req.output_resolution_deg
     if target_res is not None:
         need = float(ratio) * resolution_out / target_res
@@ -1182,3 +1187,28 @@ def counting_advice(design: ActuatorDesign, *, base_dir: str | Path | None = Non
             if changes:
                 out[f"scenario:{sc.name}"] = changes
     return out
+
+
+#: Share of the travel a friction belt (given by pitch diameters) can creep or slip (common practice
+#: for flat and V belts: 1-2 %; the larger figure is taken).
+BELT_CREEP_FRACTION = 0.02
+
+
+def _belt_creep(train, stroke: float | None) -> tuple[float, list[str]]:
+    """Output position error from friction-belt creep over the stroke, and the warnings.
+
+    A belt given by pitch diameters is taken to be a friction belt: it slips, so the count at the
+    motor stops following the output. The creep over the whole stroke joins the accuracy figure.
+    """
+    slipping = [i for i, s in enumerate(train.stages) if isinstance(s, gears.BeltStage) and s.teeth_driver is None]
+    if not slipping:
+        return 0.0, []
+    where = ", ".join(f"gear_train[{i}]" for i in slipping)
+    creep = BELT_CREEP_FRACTION * float(stroke) if stroke is not None else 0.0
+    text = (f"{where}: a belt given by pitch diameters is taken as a friction belt, which creeps and slips "
+            f"(about {BELT_CREEP_FRACTION * 100:g} % of the travel, common practice): the count at the motor "
+            "no longer follows the output. Use a toothed belt (give teeth) for position keeping, or re-home "
+            "often; ")
+    text += (f"the output accuracy includes {creep:.3g} {train.output_unit} of creep over the stroke."
+             if stroke is not None else "give the stroke to include the creep in the output accuracy.")
+    return creep, [text]
