@@ -651,8 +651,10 @@ class CounterDesign(_Section):
         FieldSpec("signed", "bool", "true for a counter that goes below zero", default=True),
         FieldSpec("overflow", "choice", "what the counter does past its range",
                   choices=("wrap", "saturate", "fault"), default="fault"),
-        FieldSpec("on_ambiguous", "choice", "what to do on a two-quadrant step between polls",
-                  choices=("hold", "guess"), default="hold"),
+        FieldSpec("on_ambiguous", "choice", "what to do on a two-quadrant step between polls: hold (flag it, "
+                  "stop counting until re-homed), guess (add two quarters in the last direction) or continue "
+                  "(flag it, keep the count, keep polling)",
+                  choices=("hold", "guess", "continue"), default="hold"),
     )
     bits: int = 16
     signed: bool = True

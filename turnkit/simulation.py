@@ -610,7 +610,8 @@ class _Run:
         if decoded == AMBIGUOUS:
             if self.settings.ambiguous_policy is AmbiguousPolicy.FLAG_AND_HOLD:
                 return False
-            step = 2 * (self.last_dir or 1)
+            step = 0 if self.settings.ambiguous_policy is AmbiguousPolicy.FLAG_AND_CONTINUE \
+                else 2 * (self.last_dir or 1)
         else:
             step = decoded
         c_min, c_max = self.count_range
@@ -882,6 +883,8 @@ class _Run:
                 if flag:
                     stop = i + int(np.argmax(amb_seg))
                     steps = decoded[i:stop]
+                elif st.ambiguous_policy is AmbiguousPolicy.FLAG_AND_CONTINUE:
+                    steps = np.where(amb_seg, 0, decoded[i:])  # flagged, count kept, polling goes on
                 else:
                     steps = self._guess(decoded[i:], amb_seg)
             path = self.count + np.cumsum(steps)

@@ -113,7 +113,7 @@ _CREEP_CAUTION = (
     "treat it as a brake."
 )
 
-_AMBIGUOUS_POLICY = {"hold": "flag_and_hold", "guess": "guess_last_direction"}
+_AMBIGUOUS_POLICY = {"hold": "flag_and_hold", "guess": "guess_last_direction", "continue": "flag_and_continue"}
 _HOURS_PER_YEAR = 8766.0
 
 
