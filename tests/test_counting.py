@@ -110,3 +110,21 @@ def test_a_friction_belt_carries_creep_in_the_accuracy_with_a_warning():
         a.value("output_accuracy").value + BELT_CREEP_FRACTION * stroke)
     assert any("friction belt" in w for w in b.warnings)
     assert not any("friction belt" in w for w in a.warnings)
+
+
+def test_segments_and_burst_replay_scenarios_size_from_the_design_file(tmp_path):
+    # Logged pulls on the shade at the tube: 30 rpm there is 1920 rpm at the 64:1 motor.
+    (tmp_path / "seg.csv").write_text("start [s],duration [s],speed [rpm],acceleration [rpm/s]\n"
+                                      "1,0.5,0,60\n1.5,2,30,0\n3.5,0.5,30,-60\n")
+    (tmp_path / "bursts.csv").write_text("start [s],ramp [ms],cruise [s],acceleration [rpm/s]\n"
+                                         "1,500,2,60\n10,250,1,-120\n")
+    text = (DEMO / "window-shade-winder.toml").read_text().split("[[motion]]")[0]
+    text += ('[[motion]]\nname = "logged segments"\nkind = "segments"\ntrace = "seg.csv"\n\n'
+             '[[motion]]\nname = "logged bursts"\nkind = "burst_replay"\ntrace = "bursts.csv"\n\n'
+             '[requirements]\nbackdrive_speed = "30 rpm"\n')
+    (tmp_path / "d.toml").write_text(text)
+    result = size(load_design(tmp_path / "d.toml"), base_dir=tmp_path, curves=False)
+    rows = {r.name: r for r in result.scenarios}
+    assert rows["logged segments"].peak_motor_speed_rpm == pytest.approx(1920.0)
+    assert rows["logged bursts"].peak_motor_speed_rpm == pytest.approx(1920.0)
+    assert all(r.passed for r in rows.values())

@@ -822,6 +822,8 @@ MOTION_FIELDS_BY_KIND: dict[str, tuple[frozenset[str], frozenset[str]]] = {
     "bursts": (frozenset({"speed", "distance", "bursts_per_day", "duration"}), frozenset({"start", "seed"})),
     "vibration": (frozenset({"amplitude", "frequency", "duration"}), frozenset({"start"})),
     "trace": (frozenset({"trace"}), frozenset({"start"})),
+    "segments": (frozenset({"trace"}), frozenset({"start"})),
+    "burst_replay": (frozenset({"trace"}), frozenset({"start"})),
 }
 
 
@@ -857,7 +859,8 @@ class MotionScenario(_Section):
         FieldSpec("amplitude", "quantity", "peak amplitude of the vibration", units=_POSITION_UNITS,
                   low=0.0, low_open=True),
         FieldSpec("frequency", "quantity", "frequency of the vibration", units=("Hz",), low=0.0, low_open=True),
-        FieldSpec("trace", "path", "CSV file of recorded motion, relative to the design file"),
+        FieldSpec("trace", "path", "CSV file of recorded motion (trace), of motion segments (segments) or of "
+                  "bursts to replay (burst_replay), relative to the design file"),
     )
     name: str
     kind: str

@@ -410,6 +410,8 @@ def build_motion(sc: MotionScenario, train, base_dir: Path | None = None) -> tup
                              duration_s=sc.duration_s, boundary_deg=boundary)
             peak = 2 * math.pi * sc.frequency_Hz * amp_deg / 6.0
             return prof, sc.duration_s + 0.74, peak
+        if sc.kind in ("segments", "burst_replay"):
+            return _logged_motion(sc, train, base_dir, start_deg)
         if sc.kind == "trace":
             path = Path(sc.trace)
             if not path.is_absolute() and base_dir is not None:
@@ -1212,3 +1214,27 @@ def _belt_creep(train, stroke: float | None) -> tuple[float, list[str]]:
     text += (f"the output accuracy includes {creep:.3g} {train.output_unit} of creep over the stroke."
              if stroke is not None else "give the stroke to include the creep in the output accuracy.")
     return creep, [text]
+
+
+def _logged_motion(sc: MotionScenario, train, base_dir, start_deg: float) -> tuple[MotionProfile, float, float]:
+    """A ``segments`` or ``burst_replay`` scenario: (profile, duration_s, peak motor rpm)."""
+    from .motion import load_bursts_csv, load_segments_csv
+
+    path = Path(sc.trace)
+    if not path.is_absolute() and base_dir is not None:
+        path = Path(base_dir) / path
+    load = load_segments_csv if sc.kind == "segments" else load_bursts_csv
+    prof = load(path, train=train, at_output=(sc.at == "output"), start_angle_deg=start_deg)
+    inner = prof
+    while not hasattr(inner, "peak_speed_rpm"):   # AtOutput, or AtOutput plus a resting offset
+        inner = inner.profile if hasattr(inner, "profile") else inner.profiles[0]
+    peak = abs(inner.peak_speed_rpm)
+    if inner is not prof:
+        from .motion import output_travel_to_motor_deg
+
+        # The inner profile turns in output units (deg or mm) at "rpm" = output units per 6 s;
+        # motor degrees per output unit map both to the motor.
+        peak *= abs(float(output_travel_to_motor_deg(1.0, train)))
+    _, ends = prof.motion_intervals()
+    end = float(ends[-1]) if ends.size else 0.0
+    return prof, end + 0.5, peak
