@@ -128,3 +128,30 @@ def test_segments_and_burst_replay_scenarios_size_from_the_design_file(tmp_path)
     assert rows["logged segments"].peak_motor_speed_rpm == pytest.approx(1920.0)
     assert rows["logged bursts"].peak_motor_speed_rpm == pytest.approx(1920.0)
     assert all(r.passed for r in rows.values())
+
+
+def test_the_simulated_unit_is_the_worst_case_unless_the_design_gives_its_edges():
+    # The shade polled every 6 ms while the shade is pulled steadily at 30 rpm (1920 rpm at the
+    # motor, 69.1 deg per poll). A unit with ideal edges (every quadrant 90 deg) counts it right;
+    # the worst unit inside 10 deg / 4 deg (a 66 deg quadrant) reads some polls as ambiguous, as
+    # the bound says, and none silently (69.1 < 156 deg).
+    from turnkit.design import MotionScenario
+
+    design = load_design(DEMO / "window-shade-winder.toml")
+    pull = MotionScenario(name="steady pull", kind="constant", at="output", speed_rpm=30.0, duration_s=3.0)
+    old = dataclasses.replace(design, motion=(pull,), schedule=dataclasses.replace(
+        design.schedule, kind="fixed", poll_period_ms=6.0))
+    ideal = dataclasses.replace(old, latches=dataclasses.replace(
+        old.latches, edge_shift_0_deg=0.0, edge_shift_90_deg=0.0, edge_shift_180_deg=0.0, edge_shift_270_deg=0.0))
+    worst = size(old, base_dir=DEMO, curves=False).scenarios[0]
+    fine = size(ideal, base_dir=DEMO, curves=False).scenarios[0]
+    assert fine.passed
+    assert not worst.passed and worst.ambiguous_count > 0 and worst.silent_error_count == 0
+    # The row's output error is the real count error at the output: the counter held its count
+    # in fault while the pull went on, so the final error is most of the 3 s pull.
+    quarter_deg = 360.0 / 64 / 4
+    assert abs(worst.final_count_error_qt) > 100
+    assert worst.max_output_error == pytest.approx(abs(worst.final_count_error_qt) * quarter_deg)
+    assert "to fix: poll at least every" in worst.note
+    with pytest.raises(ValueError, match="edge_shift"):
+        dataclasses.replace(old.latches, edge_shift_0_deg=1.0)

@@ -490,3 +490,20 @@ def test_relax_advice_when_speed_needs_polls_shorter_than_awake_time():
 def test_relax_advice_rejects_awake_current_below_sleep_current():
     with pytest.raises(DesignValueError, match="awake_current_uA"):
         relax_advice(backdrive_motor_speed_rpm=100.0, **dict(SCHEDULE, awake_current_uA=0.5))
+
+
+@FAST
+@given(period=st.floats(0.001, 1.0), w=st.floats(20.0, 90.0), j=st.floats(0.0, 0.45), m=st.floats(0.0, 0.8))
+def test_latch_geometry_bounds_agree_with_the_numeric_bounds_module(period, w, j, m):
+    # The symbolic max_trackable_speed and max_poll_period with the narrowest quadrant, jitter and
+    # margin equal turnkit.bounds (derived, shown in docs/counter.md); silent onset likewise.
+    from turnkit import bounds
+
+    assert solve_for("n_max_rpm", T=period, w_q=w, j=j) == pytest.approx(
+        bounds.max_trackable_speed_rpm(period, w, j), rel=1e-12)
+    assert solve_for("n_silent_rpm", T=period, w_2q=w + 90.0, j=j) == pytest.approx(
+        bounds.silent_error_speed_rpm(period, w + 90.0, j), rel=1e-12)
+    speed = bounds.max_trackable_speed_rpm(period, w, j)
+    solved = max_poll_period_for_speed_s(motor_speed_rpm=speed, narrowest_quadrant_deg=w, jitter=j, margin=m)
+    assert solved.value == pytest.approx(bounds.max_poll_period_s(speed, w, j, m), rel=1e-12)
+    assert solved.value == pytest.approx(period * (1 - m), rel=1e-9)

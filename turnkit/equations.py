@@ -78,12 +78,14 @@ _DOMAIN_WORDS = {
 }
 
 LOST_COUNT_CAUTION = (
-    "Caution: this bound has no margin. Latch hysteresis, wake-up jitter and speed peaks "
-    "above the stated back-drive speed can lose quarter-turns, sometimes with no error "
-    "flag, and a lost count moves the actuator to the wrong place, where it can pinch or "
-    "crush. Poll well inside the bound (common practice: at least twice as fast), re-home "
-    "after any battery event, and where a wrong position can hurt someone follow local "
-    "codes, the applicable functional-safety standards and licensed practice."
+    "Caution: this bound holds only for the narrowest quadrant, jitter and margin given "
+    "(with their ideal values 90 deg, 0 and 0 it has no allowance for real latches at all). "
+    "Latch edges outside their stated tolerances and speed peaks above the stated back-drive "
+    "speed can lose quarter-turns, sometimes with no error flag, and a lost count moves the "
+    "actuator to the wrong place, where it can pinch or crush. Keep a counting margin (common "
+    "practice: use no more than 50-70 % of the bound), re-home after any battery event, and "
+    "where a wrong position can hurt someone follow local codes, the applicable "
+    "functional-safety standards and licensed practice."
 )
 
 BATTERY_CAUTION = (
