@@ -843,6 +843,16 @@ def _float_tuple(cls: str, name: str, values, unit: str) -> np.ndarray:
     return a
 
 
+def _in_order(cls: str, starts: np.ndarray, ends: np.ndarray, what: str) -> None:
+    """Refuse parts that overlap or come out of time order, naming the first one."""
+    overlap = np.flatnonzero(starts[1:] < ends[:-1])
+    if overlap.size:
+        k = int(overlap[0]) + 1
+        raise DesignValueError(f"{cls}.starts_s[{k}]", float(starts[k]),
+                               f">= the end of {what} {k - 1} ({float(ends[k - 1]):g} s)", unit="s",
+                               hint=f"{what}s are in time order and do not overlap")
+
+
 @dataclass(frozen=True, slots=True)
 class SegmentedMotion(MotionProfile):
     """Motion made of segments, each with a start, a duration, a start speed and an acceleration.
@@ -901,12 +911,7 @@ class SegmentedMotion(MotionProfile):
             k = int(np.flatnonzero(du <= 0)[0])
             raise DesignValueError(f"{c}.durations_s[{k}]", float(du[k]), "> 0", unit="s")
         ends = st + du
-        overlap = np.flatnonzero(st[1:] < ends[:-1])
-        if overlap.size:
-            k = int(overlap[0]) + 1
-            raise DesignValueError(f"{c}.starts_s[{k}]", float(st[k]),
-                                   f">= the end of segment {k - 1} ({float(ends[k - 1]):g} s)", unit="s",
-                                   hint="segments are in time order and do not overlap")
+        _in_order(c, st, ends, "segment")
         _num(c, "start_angle_deg", self.start_angle_deg, "deg")
         for name, arr in (("starts_s", st), ("durations_s", du), ("start_speeds_rpm", v),
                           ("accelerations_rpm_per_s", a)):
@@ -999,12 +1004,7 @@ class BurstReplay(MotionProfile):
                 k = int(np.flatnonzero(~ok)[0])
                 raise DesignValueError(f"{c}.{name}[{k}]", float(arr[k]), allowed)
         ends = st + 2 * ramp + cruise
-        overlap = np.flatnonzero(st[1:] < ends[:-1])
-        if overlap.size:
-            k = int(overlap[0]) + 1
-            raise DesignValueError(f"{c}.starts_s[{k}]", float(st[k]),
-                                   f">= the end of burst {k - 1} ({float(ends[k - 1]):g} s)", unit="s",
-                                   hint="bursts are in time order and do not overlap")
+        _in_order(c, st, ends, "burst")
         for name, arr in (("starts_s", st), ("ramps_s", ramp), ("cruises_s", cruise),
                           ("accelerations_rpm_per_s", acc)):
             object.__setattr__(self, name, tuple(arr.tolist()))

@@ -449,11 +449,15 @@ class _Run:
                                     self.edges).astype(np.int64)
         return quadrant_index(self.profile.angle_deg(times))
 
-    def _index_in_place(self, q):
-        """Motor angles in ``q`` (deg) -> quadrant indices as float64, in place."""
+    def _read_index(self, times, q):
+        """Quadrant index at the read ``times`` written into ``q`` (float64), returned.
+
+        Ideal edges: floor(angle/90° + snap) straight into the work array; a unit's own
+        edges: :func:`edge_index` of the sampled angles.
+        """
         if self.edges is not None:
-            return _edge_index_into(q, self.edges)
-        np.multiply(q, 1.0 / 90.0, out=q)
+            return _edge_index_into(_into(self.profile._angle_deg_into(times, q), q), self.edges)  # noqa: SLF001
+        np.multiply(self.profile._angle_deg_into(times, q), 1.0 / 90.0, out=q)  # noqa: SLF001
         q += BOUNDARY_SNAP_QT
         np.floor(q, out=q)
         return q
@@ -558,13 +562,7 @@ class _Run:
         times *= period
         if anchor != 0.0:
             times += anchor
-        q = self.q_buf[:n]
-        if self.edges is not None:
-            self._index_in_place(_into(self.profile._angle_deg_into(times, q), q))  # noqa: SLF001
-        else:
-            np.multiply(self.profile._angle_deg_into(times, q), 1.0 / 90.0, out=q)  # noqa: SLF001
-            q += BOUNDARY_SNAP_QT
-            np.floor(q, out=q)
+        q = self._read_index(times, self.q_buf[:n])
         d = self.d_buf[:n]
         d[0] = q[0] - self.q_ref
         np.subtract(q[1:], q[:-1], out=d[1:])
@@ -746,13 +744,7 @@ class _Run:
                 times = nominal if jitter == 0.0 else nominal + self.rng.uniform(-jitter, jitter, nominal.size)
                 # Quadrant index kept in float64 (exact for |index| < 2**53) to
                 # save a conversion pass; _apply converts only when it decodes.
-                q = self.q_buf[:times.size]
-                if self.edges is not None:
-                    self._index_in_place(_into(self.profile._angle_deg_into(times, q), q))  # noqa: SLF001
-                else:
-                    np.multiply(self.profile._angle_deg_into(times, q), 1.0 / 90.0, out=q)  # noqa: SLF001
-                    q += BOUNDARY_SNAP_QT
-                    np.floor(q, out=q)
+                q = self._read_index(times, self.q_buf[:times.size])
                 if mode == "fast":
                     cut = self._fast_cut(times, q)
                     if cut is not None:
