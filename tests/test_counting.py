@@ -155,3 +155,22 @@ def test_the_simulated_unit_is_the_worst_case_unless_the_design_gives_its_edges(
     assert "to fix: poll at least every" in worst.note
     with pytest.raises(ValueError, match="edge_shift"):
         dataclasses.replace(old.latches, edge_shift_0_deg=1.0)
+
+
+def test_the_life_plot_limit_line_counts_the_scenarios_speeds_too():
+    # A hand crank at 2 mm/s (faster than the required 0.6 mm/s) sets the limit line: the longest
+    # poll period that counts 2 mm/s with the 30 % margin, not the requirement's.
+    from turnkit.bounds import max_poll_period_s
+    from turnkit.design import MotionScenario
+
+    design = load_design(DEMO / "irrigation-gate-valve.toml")
+    crank = MotionScenario(name="hand crank", kind="constant", at="output", speed_mm_per_s=2.0, duration_s=2.0)
+    fast = dataclasses.replace(design, motion=tuple(design.motion) + (crank,))
+    result = size(fast, base_dir=DEMO)
+    curve = result.curve("life_vs_poll_period")
+    motor_rpm = 2.0 / 0.25 * 60.0                       # 0.25 mm per motor turn
+    expected_ms = max_poll_period_s(motor_rpm, 71.0, 0.0, 0.3) * 1e3
+    assert curve.vlines[0].x == pytest.approx(expected_ms)
+    assert curve.vlines[0].x < result.value("max_poll_period_ms").value
+    assert "hand crank" in curve.note and "30 % margin" in curve.note
+    assert curve.bands and curve.bands[0].x_start == pytest.approx(expected_ms)
