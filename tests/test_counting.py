@@ -197,3 +197,14 @@ def test_monte_carlo_over_one_units_edges_never_fails_a_unit_inside_its_own_boun
     assert ok[widths >= per_poll].all()
     assert not ok.all()          # some units are narrower than 69.1 deg, and some of those miscount
     assert not mc.passed["backdrive_speed"].any()   # the check is for the worst unit, whatever was drawn
+
+
+def test_the_latch_tolerance_and_margin_controls_move_the_back_drive_check():
+    from turnkit.tuning import tunable
+
+    design = load_design(DEMO / "window-shade-winder.toml")
+    base = size(design, base_dir=DEMO, curves=False, simulate=False).check("backdrive_speed")
+    looser = tunable(design, "latches.switch_point_tolerance_deg").set(design, 14.0)
+    relaxed = tunable(design, "requirements.counting_margin").set(design, 0.1)
+    assert size(looser, base_dir=DEMO, curves=False, simulate=False).check("backdrive_speed").margin < base.margin
+    assert size(relaxed, base_dir=DEMO, curves=False, simulate=False).check("backdrive_speed").margin > base.margin
