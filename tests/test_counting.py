@@ -208,3 +208,17 @@ def test_the_latch_tolerance_and_margin_controls_move_the_back_drive_check():
     relaxed = tunable(design, "requirements.counting_margin").set(design, 0.1)
     assert size(looser, base_dir=DEMO, curves=False, simulate=False).check("backdrive_speed").margin < base.margin
     assert size(relaxed, base_dir=DEMO, curves=False, simulate=False).check("backdrive_speed").margin > base.margin
+
+
+@pytest.mark.parametrize("path", DEMOS, ids=[p.stem for p in DEMOS])
+def test_the_battery_advice_passes_when_followed(path):
+    # "a battery of at least N mAh" is rounded up, so a cell of N mAh lasts the required life.
+    import re
+
+    design = dataclasses.replace(load_design(path), requirements=dataclasses.replace(
+        load_design(path).requirements, battery_life_years=load_design(path).requirements.battery_life_years * 3))
+    check = size(design, base_dir=path.parent, curves=False, simulate=False).check("battery_life")
+    assert not check.passed
+    need = float(re.search(r"at least ([0-9.]+) mAh", check.advice).group(1))
+    bigger = dataclasses.replace(design, battery=dataclasses.replace(design.battery, capacity_mAh=need))
+    assert size(bigger, base_dir=path.parent, curves=False, simulate=False).check("battery_life").passed

@@ -21,7 +21,7 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass
-from decimal import ROUND_FLOOR, Decimal
+from decimal import ROUND_CEILING, ROUND_FLOOR, Decimal
 from typing import Any
 
 from . import bounds
@@ -40,6 +40,7 @@ __all__ = [
     "allowed_poll_period_s",
     "scenario_row",
     "scenario_changes",
+    "round_up_sig",
 ]
 
 
@@ -155,6 +156,21 @@ def _floor_sig(x: float, digits: int = 4) -> float:
     d = Decimal(repr(x * (1.0 - 1e-9)))
     step = Decimal(1).scaleb(d.adjusted() - (digits - 1))
     return float((d / step).to_integral_value(rounding=ROUND_FLOOR) * step)
+
+
+def round_up_sig(x: float, digits: int = 4) -> float:
+    """``x`` rounded up to ``digits`` significant figures, so that advice "at least x" passes when followed.
+
+    Examples
+    --------
+    >>> round_up_sig(1309.1305)
+    1310.0
+    """
+    if not (math.isfinite(x) and x > 0):
+        return x
+    d = Decimal(repr(x * (1.0 + 1e-9)))
+    step = Decimal(1).scaleb(d.adjusted() - (digits - 1))
+    return float((d / step).to_integral_value(rounding=ROUND_CEILING) * step)
 
 
 def _valid(design, change: DesignChange) -> bool:

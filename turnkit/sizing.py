@@ -867,7 +867,8 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
             try:
                 need_cap = float(batt.capacity_needed_mAh(budget.average_current_uA, req.battery_life_years, pack,
                                                           temperature_C=temperature_C, usable_fraction=usable))
-                advice = f"a battery of at least {need_cap:.4g} mAh, or a lower average current"
+                # Rounded up, so that a battery of the size named does last the life.
+                advice = f"a battery of at least {counting.round_up_sig(need_cap):.4g} mAh, or a lower average current"
                 if req_speed is not None and max_period_s > schedule.poll_period_s * 1.01:
                     advice += (f"; polling only as often as the back-drive speed needs (every "
                                f"{max_period_s * 1e3:.4g} ms) also saves charge")
