@@ -391,6 +391,12 @@ def scenario_row(design, sc, result, peak_rpm: float, train, limits: CountingLim
             advice = "widen the counter or home nearer the middle of its range"
         else:
             changes = scenario_changes(design, limits, sc.kind, peak_rpm, False, peak_to_peak_deg)
-            advice = changes[0].text if changes else "no poll period the electronics can reach counts it"
+            if changes:
+                advice = changes[0].text
+            elif _scenario_limited(sc.kind, peak_rpm, peak_to_peak_deg, limits):
+                advice = ("no poll period the electronics can reach counts it with the margin: lower the reduction "
+                          "or the speed")
+            else:
+                advice = "its speed is inside the model's bound, so check the scenario itself and the counter policy"
         row = dataclasses.replace(row, note=(note + "; " if note else "") + "to fix: " + advice)
     return row
