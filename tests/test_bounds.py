@@ -95,3 +95,78 @@ def test_output_bound_cross_checked_through_the_train():
 def test_bad_bound_inputs_raise(call):
     with pytest.raises(DesignValueError):
         call()
+
+
+# --- real latches: the narrowest quadrant sets the bounds ----------------------------------------
+
+from hypothesis import given, settings, strategies as st  # noqa: E402
+
+from turnkit.latches import (QuadrantLatches, edge_set_widths, quadrant_widths,  # noqa: E402
+                             worst_case_edge_shifts_deg)
+from turnkit.simulation import edge_index, quadrant_index  # noqa: E402
+
+
+def _worst_unit(delta_deg, edges, period=0.01, phases=np.linspace(0.0, 360.0, 73, endpoint=False)):
+    """Ambiguous and silent reads over many phases for a shaft turning ``delta_deg`` per poll."""
+    rpm = delta_deg / (6.0 * period)
+    amb = silent = 0
+    for phase in phases:
+        for start in (0.0, 0.41 * period):
+            r = simulate(ConstantSpeed(rpm, start_s=start, duration_s=60 * period, start_angle_deg=phase),
+                         FixedSchedule(period, wake_time_s=0, settle_time_s=0, poll_time_s=0),
+                         start + 62 * period, GUESS, edge_shifts_deg=edges)
+            amb += len(r.ambiguous_events)
+            silent += r.silent_error_count
+    return amb, silent
+
+
+def test_ideal_edges_give_the_plain_quadrant_index():
+    angles = np.linspace(-1000.0, 1000.0, 20001)
+    assert np.array_equal(edge_index(angles, (0.0, 0.0, 0.0, 0.0)), quadrant_index(angles))
+    # Any common shift s moves every edge: the index of angle + s equals the ideal index of angle.
+    assert np.array_equal(edge_index(angles + 7.25, (7.25,) * 4), quadrant_index(angles))
+
+
+def test_narrowest_quadrant_of_the_window_shade_latches():
+    # 10 deg tolerance, 4 deg hysteresis, latches powered only around polls: each edge within
+    # +-12 deg, so 90 - 24 = 66 deg and 180 - 24 = 156 deg (derived, shown in docs/counter.md).
+    w = quadrant_widths(QuadrantLatches(10.0, 4.0, powered="during_polls"))
+    assert (w.narrowest_quadrant_deg, w.narrowest_two_quadrants_deg) == (66.0, 156.0)
+    always = quadrant_widths(QuadrantLatches(10.0, 4.0, powered="always"))
+    assert (always.narrowest_quadrant_deg, always.narrowest_two_quadrants_deg) == (70.0, 160.0)
+    # The worst-case unit realises both narrowest spans at once.
+    assert edge_set_widths(worst_case_edge_shifts_deg(QuadrantLatches(10.0, 4.0))) == (66.0, 156.0)
+    # Misalignment turns all edges alike and changes no width.
+    assert quadrant_widths(QuadrantLatches(10.0, 4.0, 20.0)) == w
+
+
+def test_bounds_scale_with_the_narrowest_quadrant_and_the_jitter():
+    # Source: worst interval between reads T(1 + 2j) for reads within +-jT of their nominal time,
+    # and n = w / (6 T) (derived, shown in docs/counter.md).
+    assert max_trackable_speed_rpm(0.01, 66.0, 0.05) == pytest.approx(66.0 / (6 * 0.011))
+    assert silent_error_speed_rpm(0.01, 156.0, 0.05) == pytest.approx(156.0 / (6 * 0.011))
+    t = max_poll_period_s(1000.0, 66.0, 0.05, 0.3)
+    assert max_trackable_speed_rpm(t, 66.0, 0.05) * 0.7 == pytest.approx(1000.0)
+
+
+def test_adaptive_worst_interval_takes_each_period_with_its_own_jitter():
+    sch = AdaptiveSchedule(0.006, 0.002, 1.0, jitter_s=0.0006, fast_jitter_s=0.0002)
+    from turnkit.bounds import worst_intervals_s
+    assert worst_intervals_s(sch) == pytest.approx({"polling": 0.0072, "fast_polling": 0.0024})
+    assert schedule_speed_limit_rpm(sch, 66.0) == pytest.approx(66.0 / (6 * 0.0072))
+
+
+_SHIFT = st.floats(-30.0, 30.0, allow_nan=False)
+
+
+@settings(max_examples=15, deadline=None)
+@given(st.tuples(_SHIFT, _SHIFT, _SHIFT, _SHIFT))
+def test_random_edge_sets_never_miscount_below_the_bound_and_do_just_above(edges):
+    # Brute force over phases, for one unit's edges drawn at random: at the narrowest quadrant
+    # per poll no read is wrong (inclusive); 3 % above it some phase is ambiguous; at the
+    # narrowest two-quadrant span none is silent, and 3 % above it some phase is.
+    w1, w2 = edge_set_widths(edges)
+    assert _worst_unit(w1, edges) == (0, 0)
+    assert _worst_unit(1.03 * w1, edges)[0] > 0
+    assert _worst_unit(w2, edges)[1] == 0
+    assert _worst_unit(1.03 * w2, edges)[1] > 0

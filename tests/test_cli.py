@@ -180,7 +180,7 @@ def test_size_exits_1_when_only_a_motion_scenario_fails(design_file, monkeypatch
 def test_size_exits_2_on_a_bad_design_file_with_the_error_on_stderr(tmp_path, monkeypatch, capsys):
     fake_sizing(monkeypatch, sample_result())
     bad = tmp_path / "bad.toml"
-    bad.write_text(DESIGN_TEMPLATE.read_text(encoding="utf-8").replace('poll_period = "20 ms"',
+    bad.write_text(DESIGN_TEMPLATE.read_text(encoding="utf-8").replace('poll_period = "15 ms"',
                                                                        'poll_period = "20 mA"'))
     assert main(["size", str(bad)]) == EXIT_ERROR
     captured = capsys.readouterr()

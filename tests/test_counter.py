@@ -1,5 +1,6 @@
 """Tests of the quarter-turn counter: Gray code, decoding rule, policies, step()."""
 
+import dataclasses
 from fractions import Fraction
 from types import SimpleNamespace
 
@@ -247,3 +248,15 @@ def test_transition_rows_are_plain_strings_for_docs():
     assert len(rows) == len(TRANSITIONS)
     assert rows[0] == {"from": "asleep", "event": "wake_timer", "when": "always", "to": "waking",
                        "effect": "one wake pulse; wake-up and settle time start"}
+
+
+def test_flag_and_continue_counts_the_ambiguous_read_keeps_the_count_and_keeps_polling():
+    s = CounterSettings(16, ambiguous_policy="flag_and_continue", hold_s=1.0)
+    state = CounterState(mode=CounterMode.POLLING, count=10, quadrant_index=0, last_direction=1)
+    new = step(state, CounterEvent(EventKind.LATCH_READ, 5.0, latch_code=int(index_to_gray(2))), s)
+    assert new.mode is CounterMode.ASLEEP and new.count == 10 and new.ambiguous_count == 1
+    assert new.quadrant_index == 2 and new.fast_until_s == 6.0
+    # The next single step counts from the new quadrant as usual.
+    nxt = step(dataclasses.replace(new, mode=CounterMode.POLLING),
+               CounterEvent(EventKind.LATCH_READ, 5.1, latch_code=int(index_to_gray(3))), s)
+    assert nxt.count == 11

@@ -100,7 +100,8 @@ def test_writing_on_every_step_wears_the_memory_out_and_the_advised_slots_pass()
 
 def test_a_wide_hysteresis_makes_resync_undecidable_and_the_advice_passes():
     design = replace(_gate(), magnet=None, accuracy=replace(_gate().accuracy, eccentricity_mm=0.0, stray_field_mT=0.0))
-    wide = replace(design, latches=replace(design.latches, hysteresis_deg=80.0, switch_point_tolerance_deg=10.0))
+    wide = replace(design, latches=replace(design.latches, hysteresis_deg=80.0, switch_point_tolerance_deg=10.0,
+                                                 powered="always"))
     check = size(wide, base_dir=DEMO, curves=False, simulate=False).check("power_up_resync")
     assert not check.passed
     h = _advised(check, "at most ", " deg")

@@ -242,6 +242,7 @@ RANGES = {
     "I_avg": (0.001, 0.1), "I_sleep": (0.0005, 0.01), "I_awake": (0.5, 20.0),
     "t_awake": (1e-5, 1e-2), "T": (0.01, 1.0), "C_nom": (100.0, 3000.0), "C_use": (100.0, 3000.0),
     "k_T": (0.6, 1.0), "u": (0.6, 1.0), "s": (0.0, 0.03), "L": (1.0, 10.0), "N_q": (1.0, 1e6),
+    "w_q": (10.0, 90.0), "w_2q": (100.0, 180.0), "j": (0.0, 0.4), "m": (0.0, 0.7),
 }
 
 
@@ -489,3 +490,20 @@ def test_relax_advice_when_speed_needs_polls_shorter_than_awake_time():
 def test_relax_advice_rejects_awake_current_below_sleep_current():
     with pytest.raises(DesignValueError, match="awake_current_uA"):
         relax_advice(backdrive_motor_speed_rpm=100.0, **dict(SCHEDULE, awake_current_uA=0.5))
+
+
+@FAST
+@given(period=st.floats(0.001, 1.0), w=st.floats(20.0, 90.0), j=st.floats(0.0, 0.45), m=st.floats(0.0, 0.8))
+def test_latch_geometry_bounds_agree_with_the_numeric_bounds_module(period, w, j, m):
+    # The symbolic max_trackable_speed and max_poll_period with the narrowest quadrant, jitter and
+    # margin equal turnkit.bounds (derived, shown in docs/counter.md); silent onset likewise.
+    from turnkit import bounds
+
+    assert solve_for("n_max_rpm", T=period, w_q=w, j=j) == pytest.approx(
+        bounds.max_trackable_speed_rpm(period, w, j), rel=1e-12)
+    assert solve_for("n_silent_rpm", T=period, w_2q=w + 90.0, j=j) == pytest.approx(
+        bounds.silent_error_speed_rpm(period, w + 90.0, j), rel=1e-12)
+    speed = bounds.max_trackable_speed_rpm(period, w, j)
+    solved = max_poll_period_for_speed_s(motor_speed_rpm=speed, narrowest_quadrant_deg=w, jitter=j, margin=m)
+    assert solved.value == pytest.approx(bounds.max_poll_period_s(speed, w, j, m), rel=1e-12)
+    assert solved.value == pytest.approx(period * (1 - m), rel=1e-9)

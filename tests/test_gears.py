@@ -242,10 +242,30 @@ def test_train_efficiency_is_product_and_backdrive_zero_when_any_stage_locks():
     assert any("self-locking" in line for line in train.backdrive_report())
 
 
-def test_unknown_worm_lead_angle_is_reported_as_assumed_locking():
-    train = GearTrain((WormStage(1, 30),))
-    assert not train.can_backdrive
-    assert "unknown" in train.backdrive_report()[0]
+def test_unknown_back_drive_is_assumed_to_back_drive():
+    # A counter that must see every back-drive takes the cautious side: unknown means it back-drives.
+    for stage in (WormStage(1, 30), LeadScrew(pitch_mm=2)):
+        train = GearTrain((stage,))
+        assert train.can_backdrive and train.backdrive_efficiency > 0
+        assert not stage.backdrive_known
+        line = train.backdrive_report()[0]
+        assert "unknown" in line and "assumed to back-drive" in line
+
+
+def test_self_locking_is_judged_at_the_lowest_expected_friction():
+    # Source: self-locking when tan(lead) <= f / cos(phi_n) (Shigley, Eq. 13-46 with tan and cot
+    # swapped; common practice), judged at LOW_FRICTION_FACTOR = 0.8 of the stated friction.
+    from turnkit.gears import LOW_FRICTION_FACTOR
+
+    f, phi = 0.05, math.radians(20)
+    edge = math.degrees(math.atan(f / math.cos(phi)))        # locks at f exactly up to this lead angle
+    low_edge = math.degrees(math.atan(LOW_FRICTION_FACTOR * f / math.cos(phi)))
+    between = WormStage(1, 30, lead_angle_deg=0.5 * (edge + low_edge), friction_coefficient=f)
+    assert between.backdrive_efficiency < 0                  # locks at the stated friction ...
+    assert GearTrain((between,)).can_backdrive               # ... but not at 80 % of it
+    assert "too close to count on" in GearTrain((between,)).backdrive_report()[0]
+    well = WormStage(1, 30, lead_angle_deg=0.9 * low_edge, friction_coefficient=f)
+    assert GearTrain((well,)).self_locking_stages == (0,)
 
 
 def test_from_reduction_keeps_the_ratio_exact():

@@ -315,3 +315,23 @@ def test_full_turn_rejects_other_working_precisions(fn, args):
         fn(*args, dtype=np.float16)
     with pytest.raises(TypeError):
         fn(*args, precision=np.float32)
+
+
+def test_random_units_stay_inside_the_edge_spread_and_never_beat_the_worst_case():
+    from turnkit.latches import edge_set_widths, quadrant_widths, random_edge_shifts_deg
+
+    latches = QuadrantLatches(10.0, 4.0)
+    shifts = random_edge_shifts_deg(latches, np.random.default_rng(3), 500)
+    assert shifts.shape == (500, 4) and np.all(np.abs(shifts) <= 12.0)
+    worst = quadrant_widths(latches)
+    widths = np.array([edge_set_widths(s) for s in shifts])
+    assert np.all(widths[:, 0] >= worst.narrowest_quadrant_deg)
+    assert np.all(widths[:, 1] >= worst.narrowest_two_quadrants_deg)
+
+
+def test_a_spread_that_closes_the_quadrant_is_refused_naming_the_keys():
+    from turnkit.latches import quadrant_widths
+
+    with pytest.raises(DesignValueError, match="switch_point_tolerance"):
+        quadrant_widths(QuadrantLatches(40.0, 12.0))
+    assert quadrant_widths(QuadrantLatches(40.0, 12.0, powered="always")).narrowest_quadrant_deg == 10.0

@@ -171,3 +171,84 @@ def test_missing_csv_file_is_a_clear_error(tmp_path):
 def test_bad_profiles_name_the_field(make, field):
     with pytest.raises(DesignValueError, match=field):
         make()
+
+
+# --- segments and replayed bursts ------------------------------------------------------------------
+
+from turnkit.motion import (BurstReplay, SegmentedMotion, TrapezoidMove,  # noqa: E402
+                            load_bursts_csv, load_segments_csv)
+
+
+@settings(max_examples=30, deadline=None)
+@given(st.lists(st.tuples(st.floats(0.0, 2.0), st.floats(0.01, 3.0), st.floats(-500.0, 500.0),
+                          st.floats(-300.0, 300.0)), min_size=1, max_size=6))
+def test_segment_angles_are_the_integral_of_their_speed(parts):
+    # Source: the angle is the time integral of the speed; scipy.integrate.quad of the piecewise
+    # linear speed is an independent oracle of the closed form.
+    from scipy.integrate import quad
+
+    starts, t = [], 0.0
+    for gap, dur, _, _ in parts:
+        t += gap
+        starts.append(t)
+        t += dur
+    durs = [p[1] for p in parts]
+    v0 = [p[2] for p in parts]
+    acc = [p[3] for p in parts]
+    m = SegmentedMotion(starts, durs, v0, acc, start_angle_deg=12.5)
+
+    def speed_deg_per_s(x):
+        for s, d, v, a in zip(starts, durs, v0, acc):
+            if s <= x <= s + d:
+                return 6.0 * (v + a * (x - s))
+        return 0.0
+
+    probes = np.linspace(0.0, t + 1.0, 23)
+    breaks = sorted(set(starts) | {s + d for s, d in zip(starts, durs)})
+    for x in probes:
+        ref = 12.5 + quad(speed_deg_per_s, 0.0, x, points=[b for b in breaks if b < x] or None, limit=200)[0]
+        assert float(m.angle_deg(x)) == pytest.approx(ref, abs=1e-6 * (1 + abs(ref)))
+
+
+def test_a_replayed_burst_is_the_trapezoid_move_with_the_same_ramp_and_cruise():
+    # Independent cross-check against TrapezoidMove: ramp 0.4 s at 150 rpm/s -> 60 rpm top, 1.1 s cruise.
+    a, ramp, cruise = 150.0, 0.4, 1.1
+    top_rpm = a * ramp
+    distance_deg = 6.0 * top_rpm * (ramp + cruise)
+    burst = BurstReplay((2.0,), (ramp,), (cruise,), (a,), start_angle_deg=30.0)
+    move = TrapezoidMove(distance_deg=distance_deg, max_speed_rpm=top_rpm, accel_rpm_per_s=a, start_s=2.0,
+                         start_angle_deg=30.0, driven=False)
+    t = np.linspace(0.0, 6.0, 601)
+    assert np.allclose(burst.angle_deg(t), move.angle_deg(t), atol=1e-9)
+    assert burst.peak_speed_rpm == pytest.approx(top_rpm)
+    s, e = burst.motion_intervals()
+    assert s.tolist() == [2.0] and e[0] == pytest.approx(2.0 + 2 * ramp + cruise)
+
+
+def test_many_segments_are_located_by_search_not_by_scanning_every_part():
+    # 200 000 segments: a time's value comes from its own segment only (checked at random times
+    # against the per-segment formula), as one binary search per time gives it.
+    n = 200_000
+    starts = np.arange(n, dtype=float) * 2.0
+    m = SegmentedMotion(starts, np.ones(n), np.full(n, 10.0), np.zeros(n))
+    rng = np.random.default_rng(1)
+    t = np.sort(rng.uniform(0.0, 2.0 * n, 5000))
+    k = np.floor(t / 2.0)
+    expected = 60.0 * k + 60.0 * np.minimum(t - 2.0 * k, 1.0)
+    assert np.allclose(m.angle_deg(t), expected, rtol=1e-12, atol=1e-6)
+
+
+def test_segment_and_burst_files_read_with_units_and_name_bad_lines():
+    seg = load_segments_csv("# pulls\nstart [ms],duration [s],speed [deg/s],acceleration [deg/s^2]\n"
+                            "0,1,0,360\n2000,1,360,-360\n")
+    assert float(seg.angle_deg(10.0)) == pytest.approx(180.0 + 180.0)
+    bursts = load_bursts_csv("start [s],ramp [s],cruise [s],acceleration [rpm/s]\n1,0.5,2,120\n")
+    assert float(bursts.angle_deg(10.0)) == pytest.approx(900.0)
+    with pytest.raises(DesignFileError, match=":4: row"):
+        load_segments_csv("start [s],duration [s],speed [rpm],acceleration [rpm/s]\n0,2,1,0\n# note\n1,1,1,0\n")
+    with pytest.raises(DesignFileError, match=":2: row"):
+        load_bursts_csv("start [s],ramp [s],cruise [s],acceleration [rpm/s]\n0,0,1,5\n")
+    with pytest.raises(DesignFileError, match="acceleration"):
+        load_bursts_csv("start [s],ramp [s],cruise [s],speed [rpm]\n0,1,1,5\n")
+    with pytest.raises(DesignValueError, match="durations_s"):
+        SegmentedMotion((0.0,), (0.0,), (1.0,), (0.0,))

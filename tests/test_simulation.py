@@ -67,7 +67,7 @@ def oracle(angle, times, final_t, width=32, policy="flag_and_hold"):
             if policy == "flag_and_hold":
                 fault = True
                 break
-            dec = 2 * (last_dir or 1)
+            dec = 0 if policy == "flag_and_continue" else 2 * (last_dir or 1)
         elif dec != true:
             silent += 1
         if dec in (1, -1):
@@ -120,7 +120,7 @@ def busy_profiles(draw, max_rpm=6000.0):
 
 @settings(max_examples=40, deadline=None)
 @given(busy_profiles(), st.sampled_from([0.005, 0.01, 0.0173]),
-       st.sampled_from(["flag_and_hold", "guess_last_direction"]))
+       st.sampled_from(["flag_and_hold", "guess_last_direction", "flag_and_continue"]))
 def test_every_ambiguous_and_silent_read_matches_the_oracle(profile, period, policy):
     check_against_oracle(profile, period, 3.0, policy)
 
@@ -394,7 +394,7 @@ def test_adaptive_schedule_matches_a_poll_by_poll_replay(seed, hold, top_rpm):
 
 @settings(max_examples=30, deadline=None)
 @given(st.floats(1.0, 6.0), st.sampled_from([1, -1]), st.floats(0, 360), st.floats(20, 300), st.floats(1, 90),
-       st.sampled_from(["flag_and_hold", "guess_last_direction"]))
+       st.sampled_from(["flag_and_hold", "guess_last_direction", "flag_and_continue"]))
 def test_fast_motion_every_error_matches_the_oracle(multiple, sign, phase, amplitude, freq, policy):
     # Well above the 1500 rpm bound of 10 ms polls, plus a strong vibration:
     # ambiguous and silent reads are frequent here.
@@ -433,7 +433,8 @@ def general_path(profile, sch, duration, settings, trace_window_s=None):
 
 @settings(max_examples=40, deadline=None)
 @given(st.integers(0, 10_000), st.floats(1, 3000), st.floats(0.05, 6), st.sampled_from([0.0, 0.05, 0.4, 3.0]),
-       st.sampled_from(["flag_and_hold", "guess_last_direction"]), st.sampled_from([4, 8, 32]),
+       st.sampled_from(["flag_and_hold", "guess_last_direction", "flag_and_continue"]),
+       st.sampled_from([4, 8, 32]),
        st.sampled_from(["wrap", "saturate", "fault"]), st.booleans(), st.sampled_from([None, (50.0, 52.0)]))
 def test_adaptive_burst_shortcut_gives_the_general_result(seed, top_rpm, longest_s, hold, policy, width, overflow,
                                                           with_other_motion, window):
@@ -472,3 +473,21 @@ def test_sorted_burst_angles_match_the_per_time_formula(seed, rate, shortest_s, 
     b0 = np.concatenate(([bursts.start_angle_deg], before[:-1]))
     reference = (np.minimum(t, e0[row]) - s0[row]) * v0[row] + b0[row]
     assert np.array_equal(bursts.angle_deg_sorted(t), reference)
+
+
+def test_flag_and_continue_counts_every_ambiguous_read_of_a_year_without_a_fault():
+    # Bursts faster than the bound: flag-and-hold stops at the first ambiguous read; flag-and-continue
+    # keeps polling and counts every one, never guessing (the count is then wrong by what was skipped).
+    from turnkit.motion import BackDriveBursts
+
+    period = 0.01
+    fast = 1.5 * max_trackable_speed_rpm(period)
+    bursts = BackDriveBursts(rate_per_day=20, speed_min_rpm=fast, speed_max_rpm=fast, duration_min_s=1.0,
+                             duration_max_s=2.0, horizon_s=365.25 * 86400, seed=3)
+    year = 365.25 * 86400
+    hold = simulate(bursts, FixedSchedule(period), year, CounterSettings(32), rehome_on_drive=False)
+    go_on = simulate(bursts, FixedSchedule(period), year, CounterSettings(32, ambiguous_policy="flag_and_continue"))
+    assert hold.fault_count == 1 and hold.ambiguous_count == 1
+    assert go_on.fault_count == 0 and go_on.ambiguous_count > 1000
+    assert go_on.state_time_s["fault"] == 0.0
+    assert go_on.poll_count == int(year / period)

@@ -99,11 +99,15 @@ def test_ratio_and_travel_come_from_the_exact_train(small):
 def test_speed_bound_and_poll_period_agree_with_the_symbolic_model(small):
     result = size(small, curves=False)
     # Symbolic solution (sympy) against the numeric engine.
-    t_max = eq.max_poll_period_for_speed_s(output_speed=5.0, travel_per_turn=2 / 3, output_unit="mm")
+    # Default latches: 5 deg tolerance, 2 deg hysteresis, powered only around polls -> each edge
+    # within +-6 deg, narrowest quadrant 78 deg; default counting margin 30 %.
+    t_max = eq.max_poll_period_for_speed_s(output_speed=5.0, travel_per_turn=2 / 3, output_unit="mm",
+                                           narrowest_quadrant_deg=78.0, margin=0.3)
     assert result.value("max_poll_period_ms").value == pytest.approx(t_max.value * 1e3, rel=1e-12)
-    # Source: reference-checks.md section 5: n_max [rpm] = 15 / T_poll [s] -> 20 ms -> 750 rpm.
-    assert result.value("trackable_motor_speed_rpm").value == pytest.approx(750.0)
-    assert eq.solve_for("n_max_rpm", T=0.020) == pytest.approx(750.0)
+    # n_max = w / (6 T) (derived, shown in docs/counter.md): 78 deg per 20 ms -> 650 rpm.
+    assert result.value("narrowest_quadrant_deg").value == 78.0
+    assert result.value("trackable_motor_speed_rpm").value == pytest.approx(650.0)
+    assert eq.solve_for("n_max_rpm", T=0.020, w_q=78.0) == pytest.approx(650.0)
 
 
 def test_battery_life_agrees_with_the_symbolic_life_equation(small):
@@ -155,7 +159,8 @@ def test_capacity_needed_lasts_exactly_the_required_life():
 def test_a_poll_period_past_the_bound_fails_the_backdrive_check_and_the_simulation_agrees(small):
     result = size(small, curves=True)
     t_max_ms = result.value("max_poll_period_ms").value
-    slow = tunable(small, "schedule.poll_period_ms").set(small, t_max_ms * 1.6)
+    # 2.2 times the period with 30 % margin: about 1.5 times the bound itself.
+    slow = tunable(small, "schedule.poll_period_ms").set(small, t_max_ms * 2.2)
     bad = size(slow, curves=True)
     assert result.check("backdrive_speed").passed
     assert not bad.check("backdrive_speed").passed
@@ -213,11 +218,15 @@ stroke = "100 mm"
 
 
 def test_self_locking_train_gets_the_creep_caution_and_backdriving_train_the_runaway_caution(small):
-    locking = size(small, curves=False)
-    # A sliding screw without a mean diameter is assumed self-locking (and said to be unknown).
+    unknown = size(small, curves=False)
+    # A sliding screw without a mean diameter is assumed to back-drive (and said to be unknown):
+    # the cautious side for a counter that must see every back-drive.
+    assert unknown.value("can_backdrive").value is True
+    assert any("back-drives" in c for c in unknown.cautions)
+    assert any("unknown" in w and "assumed to back-drive" in w for w in unknown.warnings)
+    locking = size(load_design(DEMO / "irrigation-gate-valve.toml"), base_dir=DEMO, curves=False, simulate=False)
     assert locking.value("can_backdrive").value is False
     assert any("creep" in c for c in locking.cautions)
-    assert any("unknown" in w for w in locking.warnings)
     shade = size(load_design(DEMO / "window-shade-winder.toml"), base_dir=DEMO, curves=False)
     assert shade.value("can_backdrive").value is True
     assert any("back-drives" in c for c in shade.cautions)

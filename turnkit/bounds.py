@@ -16,9 +16,20 @@ k modulo 4. For Δ ≥ 0 (the same holds mirrored for Δ < 0):
 Since |Δ| ≤ n·6°/s·T for a shaft never faster than n rpm, the guaranteed
 speed is n_max = 90°/(6°/s·T) = 15/T rpm (speeds up to and including it are
 tracked with ideal, jitter-free polls), and silent errors need n > 30/T rpm.
-Timing jitter of ±j lengthens the worst interval between reads to T + 2j;
-latch hysteresis and switch-point tolerance eat into the 90° as well, so
-design with margin (a common practice is to stay at or below half the bound).
+
+Real latches. The 90° and 180° above are the quadrant widths of ideal
+edges. Every function here takes the narrowest quadrant ``w₁`` and the
+narrowest two-quadrant span ``w₂`` of a unit inside the latch tolerances
+(:func:`turnkit.latches.quadrant_widths`: 90° − 2·spread and 180° − 2·spread)
+and the poll jitter ``j`` as a fraction of each poll period, whose worst
+interval between reads is T·(1 + 2j):
+
+    n_max = w₁ / (6 · T · (1 + 2j))       (inclusive)
+    n_silent = w₂ / (6 · T · (1 + 2j))    (silent errors only strictly above)
+    T_max = w₁ · (1 − m) / (6 · n · (1 + 2j))
+
+where m is the counting margin asked for (a speed counted with margin m runs
+at no more than (1 − m) of the bound). Derived, shown in docs/counter.md §6.
 The simulation reads boundaries 1e-9 quarter-turn early so that a sample
 landing exactly on a boundary is not split by floating-point rounding.
 
@@ -58,6 +69,9 @@ __all__ = [
     "max_trackable_output_speed",
     "schedule_speed_limit_rpm",
     "worst_interval_s",
+    "worst_intervals_s",
+    "counting_margin",
+    "speed_limit_rpm",
 ]
 
 #: Largest net motor rotation between reads that always decodes right, deg (inclusive).
@@ -74,46 +88,116 @@ def _period(name: str, value) -> float:
     return float(value)
 
 
-def max_trackable_speed_rpm(poll_period_s: float) -> float:
+def _width(name: str, value, upper: float) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float, np.floating, np.integer)) \
+            or not (0 < float(value) <= upper):
+        raise DesignValueError(name, value, f"in (0, {upper:g}]", unit="deg")
+    return float(value)
+
+
+def _fraction(name: str, value, upper: float = 1.0) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float, np.floating, np.integer)) \
+            or not (0 <= float(value) < upper):
+        raise DesignValueError(name, value, f"in [0, {upper:g})")
+    return float(value)
+
+
+def max_trackable_speed_rpm(poll_period_s: float, narrowest_quadrant_deg: float = TRACKING_DEG_PER_POLL,
+                            jitter: float = 0.0) -> float:
     """Fastest motor speed that every read decodes correctly, rpm (inclusive).
 
-    n_max = 90° / (6°/s per rpm · T) = 15 / T.
+    n_max = w₁ / (6°/s per rpm · T · (1 + 2j)); with ideal latches and no
+    jitter 90° / (6 · T) = 15 / T.
 
     Parameters
     ----------
     poll_period_s : float
-        Longest time between two reads, s.
+        Nominal time between two reads, s.
+    narrowest_quadrant_deg : float
+        Narrowest quadrant of a unit inside the latch tolerances, deg
+        (:func:`turnkit.latches.quadrant_widths`); 90 for ideal edges.
+    jitter : float
+        Poll jitter as a fraction of the period (each read within ±j·T of
+        its nominal time), in [0, 0.5).
 
     Examples
     --------
     >>> max_trackable_speed_rpm(0.01)
     1500.0
+    >>> round(max_trackable_speed_rpm(0.01, 66.0), 6)
+    1100.0
     """
-    return TRACKING_DEG_PER_POLL / (_DEG_PER_S_PER_RPM * _period("poll_period_s", poll_period_s))
+    w = _width("narrowest_quadrant_deg", narrowest_quadrant_deg, TRACKING_DEG_PER_POLL)
+    j = _fraction("jitter", jitter, 0.5)
+    return w / (_DEG_PER_S_PER_RPM * _period("poll_period_s", poll_period_s) * (1.0 + 2.0 * j))
 
 
-def silent_error_speed_rpm(poll_period_s: float) -> float:
+def silent_error_speed_rpm(poll_period_s: float, narrowest_two_quadrants_deg: float = SILENT_DEG_PER_POLL,
+                           jitter: float = 0.0) -> float:
     """Motor speed above which (strictly) a read can be silently wrong, rpm.
 
-    n_silent = 180° / (6°/s per rpm · T) = 30 / T. Between
-    :func:`max_trackable_speed_rpm` and this speed errors are always flagged
-    as ambiguous.
+    n_silent = w₂ / (6°/s per rpm · T · (1 + 2j)); 30 / T for ideal edges.
+    Between :func:`max_trackable_speed_rpm` and this speed errors are
+    always flagged as ambiguous.
+
+    Parameters
+    ----------
+    poll_period_s : float
+        Nominal time between two reads, s.
+    narrowest_two_quadrants_deg : float
+        Narrowest span of two neighbouring quadrants, deg; 180 for ideal edges.
+    jitter : float
+        Poll jitter as a fraction of the period, in [0, 0.5).
     """
-    return SILENT_DEG_PER_POLL / (_DEG_PER_S_PER_RPM * _period("poll_period_s", poll_period_s))
+    w = _width("narrowest_two_quadrants_deg", narrowest_two_quadrants_deg, SILENT_DEG_PER_POLL)
+    j = _fraction("jitter", jitter, 0.5)
+    return w / (_DEG_PER_S_PER_RPM * _period("poll_period_s", poll_period_s) * (1.0 + 2.0 * j))
 
 
-def max_poll_period_s(speed_rpm: float) -> float:
-    """Longest poll period that tracks a motor speed, s (inclusive): T = 15 / n.
+def max_poll_period_s(speed_rpm: float, narrowest_quadrant_deg: float = TRACKING_DEG_PER_POLL,
+                      jitter: float = 0.0, margin: float = 0.0) -> float:
+    """Longest poll period that tracks a motor speed with a margin, s (inclusive).
+
+    T = w₁ · (1 − m) / (6 · n · (1 + 2j)); 15 / n for ideal edges, no jitter
+    and no margin.
 
     Parameters
     ----------
     speed_rpm : float
         Fastest motor speed that can occur while polling, rpm (> 0; sign ignored).
+    narrowest_quadrant_deg : float
+        Narrowest quadrant, deg (see :func:`max_trackable_speed_rpm`).
+    jitter : float
+        Poll jitter as a fraction of the period, in [0, 0.5).
+    margin : float
+        Counting margin asked for, in [0, 1): the speed may use at most
+        (1 − margin) of the bound.
     """
     if isinstance(speed_rpm, bool) or not isinstance(speed_rpm, (int, float, np.floating, np.integer)) \
             or not (0 < abs(float(speed_rpm)) < math.inf):
         raise DesignValueError("speed_rpm", speed_rpm, "a finite non-zero number", unit="rpm")
-    return TRACKING_DEG_PER_POLL / (_DEG_PER_S_PER_RPM * abs(float(speed_rpm)))
+    w = _width("narrowest_quadrant_deg", narrowest_quadrant_deg, TRACKING_DEG_PER_POLL)
+    j = _fraction("jitter", jitter, 0.5)
+    m = _fraction("margin", margin)
+    return w * (1.0 - m) / (_DEG_PER_S_PER_RPM * abs(float(speed_rpm)) * (1.0 + 2.0 * j))
+
+
+def counting_margin(speed_rpm: float, limit_rpm: float) -> float:
+    """Share of the speed bound left unused: 1 − |n| / n_max (negative above the bound).
+
+    Parameters
+    ----------
+    speed_rpm : float
+        Motor speed that must be counted, rpm.
+    limit_rpm : float
+        The bound, e.g. :func:`max_trackable_speed_rpm`, rpm (> 0).
+
+    Examples
+    --------
+    >>> counting_margin(700.0, 1000.0)
+    0.3
+    """
+    return 1.0 - abs(float(speed_rpm)) / float(limit_rpm)
 
 
 def _motor_rpm_per_output_speed(train) -> float:
@@ -122,7 +206,8 @@ def _motor_rpm_per_output_speed(train) -> float:
     return abs(float(output_speed_to_motor_rpm(1.0, train)))
 
 
-def max_poll_period_at_output_s(output_speed: float, train) -> float:
+def max_poll_period_at_output_s(output_speed: float, train, narrowest_quadrant_deg: float = TRACKING_DEG_PER_POLL,
+                                jitter: float = 0.0, margin: float = 0.0) -> float:
     """Longest poll period that tracks a back-drive speed at the output, s.
 
     Parameters
@@ -132,6 +217,8 @@ def max_poll_period_at_output_s(output_speed: float, train) -> float:
         a linear one (``train.output_unit`` "deg" or "mm").
     train : object
         Gear train with ``travel_per_motor_turn``, ``output_unit``, ``direction``.
+    narrowest_quadrant_deg, jitter, margin : float
+        As for :func:`max_poll_period_s` (deg, fraction, fraction).
 
     Examples
     --------
@@ -145,24 +232,52 @@ def max_poll_period_at_output_s(output_speed: float, train) -> float:
             or not (0 < abs(float(output_speed)) < math.inf):
         unit = "mm/s" if getattr(train, "output_unit", "deg") == "mm" else "rpm"
         raise DesignValueError("output_speed", output_speed, "a finite non-zero number", unit=unit)
-    return max_poll_period_s(abs(float(output_speed)) * _motor_rpm_per_output_speed(train))
+    return max_poll_period_s(abs(float(output_speed)) * _motor_rpm_per_output_speed(train),
+                             narrowest_quadrant_deg, jitter, margin)
 
 
-def max_trackable_output_speed(poll_period_s: float, train) -> float:
+def max_trackable_output_speed(poll_period_s: float, train, narrowest_quadrant_deg: float = TRACKING_DEG_PER_POLL,
+                               jitter: float = 0.0) -> float:
     """Fastest output speed a poll period tracks: rpm (rotary) or mm/s (linear)."""
-    return max_trackable_speed_rpm(poll_period_s) / _motor_rpm_per_output_speed(train)
+    return max_trackable_speed_rpm(poll_period_s, narrowest_quadrant_deg, jitter) \
+        / _motor_rpm_per_output_speed(train)
+
+
+def _fast_jitter_s(schedule) -> float:
+    fast = getattr(schedule, "fast_jitter_s", None)
+    return schedule.jitter_s if fast is None else fast
+
+
+def worst_intervals_s(schedule) -> dict[str, float]:
+    """Longest time between two reads in each schedule state, s.
+
+    ``{"polling": T + 2·jitter}`` for a fixed schedule; an adaptive one adds
+    ``"fast_polling"`` with its fast period and the jitter of its fast polls.
+    """
+    out = {"polling": schedule.poll_period_s + 2.0 * schedule.jitter_s}
+    if hasattr(schedule, "fast_period_s"):
+        out["fast_polling"] = schedule.fast_period_s + 2.0 * _fast_jitter_s(schedule)
+    return out
 
 
 def worst_interval_s(schedule) -> float:
-    """Longest time between two reads while idle: slow period + 2 × jitter, s.
+    """Longest time between two reads while idle: the largest of :func:`worst_intervals_s`, s.
 
-    Motion that starts while the counter polls slowly is first read up to this
-    long after the previous read, so the slow period sets the guarantee even
-    for an adaptive schedule.
+    Motion that starts while the counter polls slowly is first read up to
+    the slow period plus twice its jitter after the previous read, so the
+    slow period sets the guarantee even for an adaptive schedule.
     """
-    return schedule.poll_period_s + 2.0 * schedule.jitter_s
+    return max(worst_intervals_s(schedule).values())
 
 
-def schedule_speed_limit_rpm(schedule) -> float:
-    """Guaranteed trackable motor speed of a schedule (jitter included), rpm."""
-    return max_trackable_speed_rpm(worst_interval_s(schedule))
+def speed_limit_rpm(interval_s: float, narrowest_quadrant_deg: float = TRACKING_DEG_PER_POLL) -> float:
+    """Fastest motor speed counted right when reads are at most ``interval_s`` apart, rpm.
+
+    n = w₁ / (6 · interval); the interval already holds the jitter.
+    """
+    return max_trackable_speed_rpm(interval_s, narrowest_quadrant_deg)
+
+
+def schedule_speed_limit_rpm(schedule, narrowest_quadrant_deg: float = TRACKING_DEG_PER_POLL) -> float:
+    """Guaranteed trackable motor speed of a schedule (jitter and latch widths included), rpm."""
+    return speed_limit_rpm(worst_interval_s(schedule), narrowest_quadrant_deg)

@@ -100,6 +100,9 @@ class AmbiguousPolicy(str, Enum):
     """Keep the count, enter :attr:`CounterMode.FAULT` (re-homing needed)."""
     GUESS_LAST_DIRECTION = "guess_last_direction"
     """Add two quarters in the direction of the last single step (forward if none yet)."""
+    FLAG_AND_CONTINUE = "flag_and_continue"
+    """Count the read as ambiguous, keep the count as it was and keep polling (no fault): a
+    design review can count every ambiguous read over a long run without guessing."""
 
 
 class OverflowPolicy(str, Enum):
@@ -168,7 +171,7 @@ class CounterSettings:
     overflow_policy : OverflowPolicy or str
         "wrap", "saturate" or "fault".
     ambiguous_policy : AmbiguousPolicy or str
-        "flag_and_hold" or "guess_last_direction".
+        "flag_and_hold", "guess_last_direction" or "flag_and_continue".
     start_count : int
         The count at the start (after homing), quarter-turns.
     hold_s : float
@@ -198,7 +201,8 @@ class CounterSettings:
             object.__setattr__(self, "ambiguous_policy", AmbiguousPolicy(self.ambiguous_policy))
         except ValueError:
             raise DesignValueError("CounterSettings.ambiguous_policy", self.ambiguous_policy,
-                                   "one of 'flag_and_hold', 'guess_last_direction'") from None
+                                   "one of 'flag_and_hold', 'guess_last_direction', 'flag_and_continue'"
+                                   ) from None
         if not isinstance(self.start_count, (int, np.integer)) or isinstance(self.start_count, bool) \
                 or not self.min_count <= self.start_count <= self.max_count:
             raise DesignValueError("CounterSettings.start_count", self.start_count,
@@ -293,6 +297,8 @@ TRANSITIONS: tuple[Transition, ...] = (
                "count held; position not trusted"),
     Transition(_READING, _E.LATCH_READ, "ambiguous, policy guess_last_direction", _M.ASLEEP,
                "count ±2 in the last direction; fast hold restarts"),
+    Transition(_READING, _E.LATCH_READ, "ambiguous, policy flag_and_continue", _M.ASLEEP,
+               "count kept; ambiguous read counted; fast hold restarts"),
     Transition(_READING, _E.LATCH_READ, "step leaves the range, policy wrap", _M.ASLEEP,
                "count wraps modulo 2**width_bits; overflow counted"),
     Transition(_READING, _E.LATCH_READ, "step leaves the range, policy saturate",
@@ -311,6 +317,8 @@ TRANSITIONS: tuple[Transition, ...] = (
                "count held; position not trusted"),
     Transition((_M.TRACKING,), _E.LATCH_EDGE, "two quarters at once, policy guess_last_direction",
                _M.TRACKING, "count ±2 in the last direction"),
+    Transition((_M.TRACKING,), _E.LATCH_EDGE, "two quarters at once, policy flag_and_continue",
+               _M.TRACKING, "count kept; ambiguous read counted"),
     Transition((_M.TRACKING,), _E.DRIVE_STOP, "", _M.ASLEEP, "fast hold starts"),
     Transition((_M.FAULT,), _E.REHOMED, "", _M.ASLEEP, "count set to the homed value"),
     Transition(_ANY_POWERED, _E.SUPPLY_LOW, "", _M.POWER_LOST, "count lost"),
@@ -492,6 +500,9 @@ def _read(state: CounterState, event: CounterEvent, settings: CounterSettings, n
     if settings.ambiguous_policy is AmbiguousPolicy.FLAG_AND_HOLD:
         return dataclasses.replace(state, mode=CounterMode.FAULT, quadrant_index=new_index,
                                    ambiguous_count=ambiguous)
+    if settings.ambiguous_policy is AmbiguousPolicy.FLAG_AND_CONTINUE:
+        return dataclasses.replace(state, mode=next_mode, quadrant_index=new_index, ambiguous_count=ambiguous,
+                                   fast_until_s=hold_until)
     guess = 2 * (state.last_direction or 1)
     return _counted(state, guess, settings, next_mode, quadrant_index=new_index,
                     ambiguous_count=ambiguous, fast_until_s=hold_until)

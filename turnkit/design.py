@@ -658,6 +658,18 @@ class LatchDesign(_Section):
                   "either way", units=("mT",), low=0.0, default=0.0),
         FieldSpec("threshold_drift", "quantity", "temperature coefficient of the size of the operate and "
                   "release points, referred to 20 degC", units=("%/K",), low=-2.0, high=2.0, default=0.0),
+        FieldSpec("powered", "choice", "when the latches have power: only around each poll (during_polls; "
+                  "inside its hysteresis a latch may then wake in either state) or all the time (always)",
+                  choices=("during_polls", "always"), default="during_polls"),
+        FieldSpec("edge_shift_0", "quantity", "one unit's actual shift of the latch edge at 0 deg, for "
+                  "simulating that unit (all four edge shifts or none; omitted: the worst case inside the "
+                  "tolerances)", units=("deg",), low=-45.0, high=45.0, low_open=True, high_open=True),
+        FieldSpec("edge_shift_90", "quantity", "one unit's actual shift of the latch edge at 90 deg",
+                  units=("deg",), low=-45.0, high=45.0, low_open=True, high_open=True),
+        FieldSpec("edge_shift_180", "quantity", "one unit's actual shift of the latch edge at 180 deg",
+                  units=("deg",), low=-45.0, high=45.0, low_open=True, high_open=True),
+        FieldSpec("edge_shift_270", "quantity", "one unit's actual shift of the latch edge at 270 deg",
+                  units=("deg",), low=-45.0, high=45.0, low_open=True, high_open=True),
     )
     switch_point_tolerance_deg: float = 5.0
     hysteresis_deg: float = 2.0
@@ -666,9 +678,25 @@ class LatchDesign(_Section):
     release_field_mT: float | None = None
     threshold_spread_mT: float = 0.0
     threshold_drift_pct_per_K: float = 0.0
+    powered: str = "during_polls"
+    edge_shift_0_deg: float | None = None
+    edge_shift_90_deg: float | None = None
+    edge_shift_180_deg: float | None = None
+    edge_shift_270_deg: float | None = None
+
+    @property
+    def edge_shifts_deg(self) -> tuple[float, float, float, float] | None:
+        """The unit's four edge shifts (deg), or None when not given."""
+        shifts = (self.edge_shift_0_deg, self.edge_shift_90_deg, self.edge_shift_180_deg, self.edge_shift_270_deg)
+        return None if shifts[0] is None else shifts
 
     def _check_together(self) -> None:
         _both_or_neither(self, ("operate_field_mT", "operate_field"), ("release_field_mT", "release_field"))
+        names = ("edge_shift_0_deg", "edge_shift_90_deg", "edge_shift_180_deg", "edge_shift_270_deg")
+        given = [n for n in names if getattr(self, n) is not None]
+        if given and len(given) != 4:
+            missing = [n for n in names if getattr(self, n) is None]
+            _fail(self, missing[0], None, "given with the other edge shifts (all four or none)", unit="deg")
 
 
 @dataclass(frozen=True, slots=True)
@@ -680,8 +708,10 @@ class CounterDesign(_Section):
         FieldSpec("signed", "bool", "true for a counter that goes below zero", default=True),
         FieldSpec("overflow", "choice", "what the counter does past its range",
                   choices=("wrap", "saturate", "fault"), default="fault"),
-        FieldSpec("on_ambiguous", "choice", "what to do on a two-quadrant step between polls",
-                  choices=("hold", "guess"), default="hold"),
+        FieldSpec("on_ambiguous", "choice", "what to do on a two-quadrant step between polls: hold (flag it, "
+                  "stop counting until re-homed), guess (add two quarters in the last direction) or continue "
+                  "(flag it, keep the count, keep polling)",
+                  choices=("hold", "guess", "continue"), default="hold"),
     )
     bits: int = 16
     signed: bool = True
@@ -911,6 +941,8 @@ MOTION_FIELDS_BY_KIND: dict[str, tuple[frozenset[str], frozenset[str]]] = {
     "bursts": (frozenset({"speed", "distance", "bursts_per_day", "duration"}), frozenset({"start", "seed"})),
     "vibration": (frozenset({"amplitude", "frequency", "duration"}), frozenset({"start"})),
     "trace": (frozenset({"trace"}), frozenset({"start"})),
+    "segments": (frozenset({"trace"}), frozenset({"start"})),
+    "burst_replay": (frozenset({"trace"}), frozenset({"start"})),
 }
 
 
@@ -946,7 +978,8 @@ class MotionScenario(_Section):
         FieldSpec("amplitude", "quantity", "peak amplitude of the vibration", units=_POSITION_UNITS,
                   low=0.0, low_open=True),
         FieldSpec("frequency", "quantity", "frequency of the vibration", units=("Hz",), low=0.0, low_open=True),
-        FieldSpec("trace", "path", "CSV file of recorded motion, relative to the design file"),
+        FieldSpec("trace", "path", "CSV file of recorded motion (trace), of motion segments (segments) or of "
+                  "bursts to replay (burst_replay), relative to the design file"),
     )
     name: str
     kind: str
@@ -1028,6 +1061,9 @@ class Requirements(_Section):
                   units=("degC",), low=-60.0, high=125.0),
         FieldSpec("service_temperature_high", "quantity", "highest temperature in service (omitted: "
                   "service_temperature, else 20 degC)", units=("degC",), low=-60.0, high=125.0),
+        FieldSpec("counting_margin", "fraction", "share of the counter's speed bound left unused at the "
+                  "required back-drive speed (default 30 %: count at no more than 70 % of the bound, "
+                  "common practice)", low=0.0, high=1.0, high_open=True, default=0.3),
     )
     stroke_mm: float | None = None
     stroke_deg: float | None = None
@@ -1042,6 +1078,7 @@ class Requirements(_Section):
     service_temperature_degC: float | None = None
     service_temperature_low_degC: float | None = None
     service_temperature_high_degC: float | None = None
+    counting_margin: float = 0.3
 
     def _check_together(self) -> None:
         low, high = self.temperature_range_degC()

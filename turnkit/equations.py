@@ -78,12 +78,14 @@ _DOMAIN_WORDS = {
 }
 
 LOST_COUNT_CAUTION = (
-    "Caution: this bound has no margin. Latch hysteresis, wake-up jitter and speed peaks "
-    "above the stated back-drive speed can lose quarter-turns, sometimes with no error "
-    "flag, and a lost count moves the actuator to the wrong place, where it can pinch or "
-    "crush. Poll well inside the bound (common practice: at least twice as fast), re-home "
-    "after any battery event, and where a wrong position can hurt someone follow local "
-    "codes, the applicable functional-safety standards and licensed practice."
+    "Caution: this bound holds only for the narrowest quadrant, jitter and margin given "
+    "(with their ideal values 90 deg, 0 and 0 it has no allowance for real latches at all). "
+    "Latch edges outside their stated tolerances and speed peaks above the stated back-drive "
+    "speed can lose quarter-turns, sometimes with no error flag, and a lost count moves the "
+    "actuator to the wrong place, where it can pinch or crush. Keep a counting margin (common "
+    "practice: use no more than 50-70 % of the bound), re-home after any battery event, and "
+    "where a wrong position can hurt someone follow local codes, the applicable "
+    "functional-safety standards and licensed practice."
 )
 
 BATTERY_CAUTION = (
@@ -130,6 +132,9 @@ class SymbolInfo:
     domain : str
         Allowed values: ``"positive"``, ``"nonnegative"``, ``"unit_interval"``
         (0, 1], ``"fraction"`` [0, 1) or ``"flag"`` (0 or 1).
+    ideal : float, optional
+        Value taken when the symbol is not given (ideal latch edges, no
+        jitter, no margin); None for symbols that must be given.
     """
 
     name: str
@@ -137,6 +142,7 @@ class SymbolInfo:
     unit: str
     description: str
     domain: str = "positive"
+    ideal: float | None = None
 
     def __post_init__(self):
         if not self.name.isidentifier():
@@ -162,10 +168,17 @@ def _symbols_table() -> dict[str, SymbolInfo]:
         ("n_motor_rpm", "n_{motor}", "rpm", "motor shaft speed while back-driven"),
         ("T", "T", "s", "poll period (time between wake-ups)"),
         ("n_max_rpm", "n_{max}", "rpm",
-         "highest motor speed the schedule is guaranteed to track (< 1/4 turn per poll)"),
+         "highest motor speed the schedule is guaranteed to track (at most the narrowest quadrant per poll)"),
         ("n_silent_rpm", "n_{silent}", "rpm",
-         "motor speed above which a miscount can go unflagged (> 1/2 turn per poll)"),
-        ("T_max", "T_{max}", "s", "longest poll period that tracks a given motor speed"),
+         "motor speed above which a miscount can go unflagged (more than the narrowest two quadrants per poll)"),
+        ("T_max", "T_{max}", "s", "longest poll period that tracks a given motor speed with the margin m"),
+        ("w_q", "w_{q}", "deg", "narrowest quadrant between two latch edges of a unit inside the tolerances "
+         "(90 deg for ideal edges)", "positive", 90.0),
+        ("w_2q", "w_{pair}", "deg", "narrowest span of two neighbouring quadrants (180 deg for ideal edges)",
+         "positive", 180.0),
+        ("j", "j", "1", "poll jitter as a fraction of the poll period (worst interval T (1 + 2 j))",
+         "fraction", 0.0),
+        ("m", "m", "1", "counting margin: share of the speed bound left unused", "fraction", 0.0),
         ("S", "S", "out", "stroke: full output travel"),
         ("N_q", "N_{q}", "quarter turns", "motor quarter-turns over the stroke"),
         ("b", "b", "bit", "counter bits needed", "nonnegative"),
@@ -264,24 +277,28 @@ def _eq_table() -> dict[str, Equation]:
          f"{cp} speed through a reduction; 60 s per minute",
          ("n_motor_rpm", "v_out", "p"),
          lambda s, sp: sp.Eq(s.n_motor_rpm, 60 * s.v_out / s.p)),
-        ("max_trackable_speed", "motor speed the schedule is guaranteed to track",
-         ("n_max_rpm", "T"), "n_max_rpm = (1/4) / T * 60", r"n_{max} = \frac{60}{4 T}",
-         f"{cp} two Hall latches 90 deg apart decode a step only if the shaft turns "
-         "less than a quarter turn between polls",
-         ("n_max_rpm", "T"),
-         lambda s, sp: sp.Eq(s.n_max_rpm, sp.Rational(1, 4) * 60 / s.T)),
-        ("silent_error_onset_speed", "motor speed above which a miscount can go unflagged",
-         ("n_silent_rpm", "T"), "n_silent_rpm = (1/2) / T * 60", r"n_{silent} = \frac{60}{2 T}",
-         f"{cp} beyond half a turn per poll three quadrant steps can occur and read as one "
-         "step backwards (modulo-4 aliasing)",
-         ("n_silent_rpm", "T"),
-         lambda s, sp: sp.Eq(s.n_silent_rpm, sp.Rational(1, 2) * 60 / s.T)),
-        ("max_poll_period", "longest poll period that tracks a motor speed",
-         ("T_max", "n_motor_rpm"), "T_max = 60 / (4 * n_motor_rpm)",
-         r"T_{max} = \frac{60}{4 n_{motor}}",
-         f"{cp} less than a quarter turn of the motor shaft per poll period",
+        ("max_trackable_speed", "motor speed the schedule is guaranteed to track (inclusive)",
+         ("n_max_rpm", "w_q", "T", "j"), "n_max_rpm = w_q / (6 * T * (1 + 2 * j))",
+         r"n_{max} = \frac{w_{q}}{6 \left(1 + 2 j\right) T}",
+         "(derived, shown in docs/counter.md) every read decodes right while the shaft moves at most "
+         "the narrowest quadrant w_q between reads; the longest interval between reads is T (1 + 2 j); "
+         "6 deg/s per rpm",
+         ("n_max_rpm", "w_q", "T", "j"),
+         lambda s, sp: sp.Eq(s.n_max_rpm, s.w_q / (6 * s.T * (1 + 2 * s.j)))),
+        ("silent_error_onset_speed", "motor speed above which (strictly) a miscount can go unflagged",
+         ("n_silent_rpm", "w_2q", "T", "j"), "n_silent_rpm = w_2q / (6 * T * (1 + 2 * j))",
+         r"n_{silent} = \frac{w_{pair}}{6 \left(1 + 2 j\right) T}",
+         "(derived, shown in docs/counter.md) beyond the narrowest two quadrants per poll three "
+         "quadrant steps can occur and read as one step backwards (modulo-4 aliasing)",
+         ("n_silent_rpm", "w_2q", "T", "j"),
+         lambda s, sp: sp.Eq(s.n_silent_rpm, s.w_2q / (6 * s.T * (1 + 2 * s.j)))),
+        ("max_poll_period", "longest poll period that tracks a motor speed with the margin m (inclusive)",
+         ("T_max", "w_q", "m", "n_motor_rpm", "j"), "T_max = w_q * (1 - m) / (6 * n_motor_rpm * (1 + 2 * j))",
+         r"T_{max} = \frac{\left(1 - m\right) w_{q}}{6 \left(1 + 2 j\right) n_{motor}}",
+         "(derived, shown in docs/counter.md) the max_trackable_speed bound with the speed at most "
+         "(1 - m) of it",
          ("T_max", "n_motor_rpm"),
-         lambda s, sp: sp.Eq(s.T_max, 60 / (4 * s.n_motor_rpm))),
+         lambda s, sp: sp.Eq(s.T_max, s.w_q * (1 - s.m) / (6 * s.n_motor_rpm * (1 + 2 * s.j)))),
         ("quarter_turns_per_stroke", "motor quarter-turns over the stroke",
          ("N_q", "S", "p"), "N_q = 4 * S / p", r"N_{q} = \frac{4 S}{p}",
          f"{cp} four quadrant steps per motor turn",
@@ -714,6 +731,15 @@ def _validate_knowns(knowns: dict) -> dict[str, float]:
     return checked
 
 
+def _with_ideal(knowns: dict[str, float], unknown: str) -> dict[str, float]:
+    """The knowns plus the ideal value of every symbol that has one and was not given."""
+    out = dict(knowns)
+    for name, info in SYMBOLS.items():
+        if info.ideal is not None and name != unknown and name not in out:
+            out[name] = info.ideal
+    return out
+
+
 def solve_for(unknown: str, *, equation: str | None = None, detail: bool = False, **knowns):
     """Solve the design equations for one unknown.
 
@@ -760,7 +786,7 @@ def solve_for(unknown: str, *, equation: str | None = None, detail: bool = False
     only = None
     if equation is not None:
         only = (_equation_by_key(equation).key,)
-    checked = _validate_knowns(knowns)
+    checked = _with_ideal(_validate_knowns(knowns), unknown)
     _check_consistency(checked)
     if detail:
         return _solution(unknown, checked, only)
@@ -842,10 +868,15 @@ def min_reduction_for_resolution(*, output_resolution: float, sensor_resolution_
 
 
 def max_poll_period_for_speed_s(*, motor_speed_rpm: float | None = None, output_speed: float | None = None,
-                                travel_per_turn: float | None = None, output_unit: str = "mm") -> EquationSolution:
+                                travel_per_turn: float | None = None, output_unit: str = "mm",
+                                narrowest_quadrant_deg: float = 90.0, jitter: float = 0.0,
+                                margin: float = 0.0) -> EquationSolution:
     """Longest poll period that tracks a back-drive speed without losing a count.
 
     Give either ``motor_speed_rpm``, or ``output_speed`` with ``travel_per_turn``.
+    The latch geometry, jitter and margin are those of
+    :func:`turnkit.bounds.max_poll_period_s` (the same formula, solved here
+    symbolically).
 
     Parameters
     ----------
@@ -857,22 +888,32 @@ def max_poll_period_for_speed_s(*, motor_speed_rpm: float | None = None, output_
         Output travel per motor turn, ``output_unit`` per turn.
     output_unit : str, optional
         Label of the output unit ("mm" or "deg").
+    narrowest_quadrant_deg : float, optional
+        Narrowest quadrant of a unit inside the latch tolerances, deg
+        (:func:`turnkit.latches.quadrant_widths`); 90 for ideal edges.
+    jitter : float, optional
+        Poll jitter as a fraction of the poll period, in [0, 0.5).
+    margin : float, optional
+        Counting margin asked for, in [0, 1).
 
     Returns
     -------
     EquationSolution
         ``T_max`` in s, with the lost-count caution.
     """
+    geometry = {"w_q": _require("narrowest_quadrant_deg", narrowest_quadrant_deg, "positive", "deg"),
+                "j": _require("jitter", jitter, "fraction"), "m": _require("margin", margin, "fraction")}
     if motor_speed_rpm is not None:
         if output_speed is not None or travel_per_turn is not None:
             raise TypeError("give either motor_speed_rpm, or output_speed with travel_per_turn, not both")
         n = _require("motor_speed_rpm", motor_speed_rpm, "positive", "rpm")
-        return _solution("T_max", {"n_motor_rpm": n}, ("max_poll_period",), caution=LOST_COUNT_CAUTION)
+        return _solution("T_max", {"n_motor_rpm": n, **geometry}, ("max_poll_period",),
+                         caution=LOST_COUNT_CAUTION)
     if output_speed is None or travel_per_turn is None:
         raise TypeError("give motor_speed_rpm, or both output_speed and travel_per_turn")
     v = _require("output_speed", output_speed, "positive", f"{output_unit}/s")
     p = _require("travel_per_turn", travel_per_turn, "positive", f"{output_unit}/turn")
-    return _solution("T_max", {"v_out": v, "p": p}, ("backdrive_motor_speed", "max_poll_period"),
+    return _solution("T_max", {"v_out": v, "p": p, **geometry}, ("backdrive_motor_speed", "max_poll_period"),
                      caution=LOST_COUNT_CAUTION)
 
 
@@ -1105,7 +1146,8 @@ def relax_advice(*, backdrive_motor_speed_rpm: float, life_years: float, capacit
                  sleep_current_uA: float, awake_current_uA: float, awake_time_s: float,
                  temperature_derating: float = 1.0, usable_fraction: float = 1.0,
                  self_discharge_per_year: float = 0.0, travel_per_turn: float | None = None,
-                 output_unit: str = "mm") -> RelaxAdvice:
+                 output_unit: str = "mm", narrowest_quadrant_deg: float = 90.0, jitter: float = 0.0,
+                 margin: float = 0.0) -> RelaxAdvice:
     """Say whether a poll period meets both the back-drive speed and the life.
 
     The back-drive speed bounds the poll period from above
@@ -1134,6 +1176,9 @@ def relax_advice(*, backdrive_motor_speed_rpm: float, life_years: float, capacit
         the speed advice is also stated at the output.
     output_unit : str, optional
         Label of the output unit ("mm" or "deg").
+    narrowest_quadrant_deg, jitter, margin : float, optional
+        Latch geometry (deg), poll jitter (fraction of the period) and counting
+        margin (fraction), as for :func:`max_poll_period_for_speed_s`.
 
     Returns
     -------
@@ -1150,7 +1195,9 @@ def relax_advice(*, backdrive_motor_speed_rpm: float, life_years: float, capacit
                                                       f"{output_unit}/turn")
     c = b.capacity_mAh
     battery = {"C_nom": c, "k_T": b.k_T, "u": b.u, "s": b.s}
-    t_hi = solve_for("T_max", n_motor_rpm=n)
+    geometry = {"w_q": _require("narrowest_quadrant_deg", narrowest_quadrant_deg, "positive", "deg"),
+                "j": _require("jitter", jitter, "fraction"), "m": _require("margin", margin, "fraction")}
+    t_hi = solve_for("T_max", n_motor_rpm=n, **geometry)
     # Average current the life allows; none at all when self-discharge alone empties the cell.
     margin = b.k_T * b.u - b.s * b.life_years
     i_max = solve_for("I_avg", L=b.life_years, **battery) if margin > 0 else 0.0
@@ -1169,14 +1216,15 @@ def relax_advice(*, backdrive_motor_speed_rpm: float, life_years: float, capacit
         speed_words += f" ({n * p / 60:.4g} {output_unit}/s at the output)"
     if t_lo <= t_hi:
         summary = (f"Poll periods from {t_lo:.4g} s to {t_hi:.4g} s meet both the back-drive speed of "
-                   f"{speed_words} and the life of {b.life_years:g} years. Choose one well below "
-                   f"{t_hi:.4g} s to keep a margin for latch hysteresis and wake-up jitter.")
+                   f"{speed_words} and the life of {b.life_years:g} years (the longest counts the speed "
+                   f"with {geometry['m'] * 100:.3g} % margin, latch tolerances and jitter included).")
         return RelaxAdvice(True, t_lo, t_hi, summary, (), None, keys, caution)
 
     options = []
     # 1. Back-drive speed: slow enough that the shortest life-allowed period tracks it.
     if math.isfinite(t_lo):
-        n_new = 60.0 / (4.0 * t_lo)
+        # The max_poll_period equation solved for the speed at T_max = t_lo.
+        n_new = geometry["w_q"] * (1.0 - geometry["m"]) / (6.0 * t_lo * (1.0 + 2.0 * geometry["j"]))
         text = f"Lower the back-drive speed to {n_new:.4g} rpm at the motor"
         if p is not None:
             text += f" ({n_new * p / 60:.4g} {output_unit}/s at the output)"

@@ -230,7 +230,8 @@ def _context(result: SizingResult, generated_at: datetime | None) -> dict[str, A
         "summary_line": _summary_line(result),
         "summary_detail": _summary_detail(result),
         "checks": checks,
-        "failed_advice": [(c.label, c.advice) for c in result.failed_checks if c.advice],
+        "failed_advice": [(c.label, c.advice) for c in result.failed_checks if c.advice]
+        + [(f"Motion scenario {s.name!r}", s.note) for s in result.scenarios if not s.passed and "to fix:" in s.note],
         "groups": groups,
         "scenarios": scenarios,
         "equations": list(result.equations),

@@ -58,6 +58,11 @@ __all__ = [
     "worm_efficiencies",
 ]
 
+#: Self-locking is judged at this share of the stated friction coefficient: friction
+#: coefficients scatter with lubrication, wear and vibration, so a stage counts as
+#: self-locking only when it still locks with 20 % less friction (common practice).
+LOW_FRICTION_FACTOR = 0.8
+
 Number = Union[int, float, Fraction]
 
 
@@ -426,8 +431,9 @@ class WormStage:
     lead_angle_deg : float, optional
         Worm lead angle in degrees; needed for the efficiency and the
         self-locking check. Without it, ``efficiency`` is used forward and the
-        back-drive behaviour is unknown (treated as locking; a warning says so
-        in :meth:`GearTrain.backdrive_report`).
+        back-drive behaviour is unknown (assumed to back-drive, the cautious
+        side for the counter; a warning says so in
+        :meth:`GearTrain.backdrive_report`).
     friction_coefficient : float
         Sliding friction in the mesh.
     normal_pressure_angle_deg : float
@@ -502,14 +508,29 @@ class WormStage:
 
     @property
     def backdrive_efficiency(self) -> float:
-        """Efficiency when the output drives the input; <= 0 means self-locking.
+        """Efficiency when the output drives the input at the stated friction; <= 0 means self-locking.
 
-        Without a lead angle this is unknown and reported as 0 (locking
-        assumed), which is the cautious assumption for a counter that must
-        see every motion: see :meth:`GearTrain.backdrive_report`.
+        Without a lead angle back-drive is unknown and the pair is assumed to
+        back-drive (the forward efficiency stands in), the cautious assumption
+        for a counter that must see every motion: see
+        :meth:`GearTrain.backdrive_report`.
         """
         eff = self._efficiencies()
-        return eff[1] if eff is not None else 0.0
+        return eff[1] if eff is not None else self.forward_efficiency
+
+    @property
+    def backdrive_known(self) -> bool:
+        """True when the lead angle is given, so back-drive can be judged."""
+        return self.lead_angle_deg is not None
+
+    @property
+    def backdrive_efficiency_at_low_friction(self) -> float:
+        """Back-drive efficiency at :data:`LOW_FRICTION_FACTOR` times the friction; <= 0: self-locking."""
+        if self.lead_angle_deg is None:
+            return self.backdrive_efficiency
+        fwd, back = worm_efficiencies(self.lead_angle_deg, LOW_FRICTION_FACTOR * self.friction_coefficient,
+                                      self.normal_pressure_angle_deg)
+        return fwd if self.wheel_drives else back
 
     def reversed(self) -> "WormStage":
         """The same pair driven from the other member."""
@@ -691,13 +712,27 @@ class LeadScrew:
 
     @property
     def backdrive_efficiency(self) -> float:
-        """Efficiency with the load driving the screw; <= 0 means self-locking.
+        """Efficiency with the load driving the screw at the stated friction; <= 0 means self-locking.
 
-        A sliding screw without a mean diameter is reported as 0 (unknown,
-        locking assumed).
+        A sliding screw without a mean diameter has an unknown back-drive and
+        is assumed to back-drive (its forward efficiency stands in), the
+        cautious assumption for a counter that must see every motion.
         """
         eff = self._efficiencies()
-        return eff[1] if eff is not None else 0.0
+        return eff[1] if eff is not None else self.efficiency
+
+    @property
+    def backdrive_known(self) -> bool:
+        """True when back-drive can be judged (a ball screw, or a sliding screw with its mean diameter)."""
+        return self.ball or self.mean_diameter_mm is not None
+
+    @property
+    def backdrive_efficiency_at_low_friction(self) -> float:
+        """Back-drive efficiency at :data:`LOW_FRICTION_FACTOR` times the friction; <= 0: self-locking."""
+        if self.ball or self.mean_diameter_mm is None:
+            return self.backdrive_efficiency
+        return screw_efficiencies(float(self.lead_mm), self.mean_diameter_mm,
+                                  LOW_FRICTION_FACTOR * self.friction_coefficient, self.thread_angle_deg / 2)[1]
 
 
 @dataclass(frozen=True, slots=True)
@@ -1015,10 +1050,15 @@ class GearTrain:
 
     @property
     def backdrive_efficiency(self) -> float:
-        """Overall efficiency when the output drives the motor; 0 when any stage locks."""
+        """Overall efficiency when the output drives the motor; 0 when any stage locks.
+
+        Worms and sliding screws are taken at :data:`LOW_FRICTION_FACTOR` times
+        their friction (the cautious side for a counter that must see every
+        back-drive); a stage whose back-drive is unknown is assumed to back-drive.
+        """
         e = 1.0
         for s in self.stages:
-            b = s.backdrive_efficiency
+            b = _backdrive_judged(s)
             if b <= 0:
                 return 0.0
             e *= b
@@ -1026,8 +1066,8 @@ class GearTrain:
 
     @property
     def self_locking_stages(self) -> tuple[int, ...]:
-        """Indices of the stages that do not back-drive."""
-        return tuple(i for i, s in enumerate(self.stages) if s.backdrive_efficiency <= 0)
+        """Indices of the stages that do not back-drive, even at the lowest expected friction."""
+        return tuple(i for i, s in enumerate(self.stages) if _backdrive_judged(s) <= 0)
 
     @property
     def can_backdrive(self) -> bool:
@@ -1037,19 +1077,24 @@ class GearTrain:
     def backdrive_report(self) -> tuple[str, ...]:
         """Plain sentences on back-drivability, one per stage that matters."""
         lines: list[str] = []
+        low = f"{LOW_FRICTION_FACTOR * 100:.0f} % of the stated friction"
         for i, s in enumerate(self.stages):
             if isinstance(s, WormStage) and s.lead_angle_deg is None:
-                lines.append(f"gear_train[{i}] (worm): no lead angle given; back-drive unknown, "
-                             "assumed self-locking")
+                lines.append(f"gear_train[{i}] (worm): no lead angle given; back-drive unknown, assumed to "
+                             "back-drive (the cautious assumption for a counter that must see every motion); "
+                             "give lead_angle to judge it")
             elif isinstance(s, LeadScrew) and not s.ball and s.mean_diameter_mm is None:
-                lines.append(f"gear_train[{i}] (lead screw): no mean diameter given; back-drive "
-                             "unknown, assumed self-locking")
-            elif s.backdrive_efficiency <= 0:
-                lines.append(f"gear_train[{i}] ({s.kind}): self-locking (back-drive efficiency "
-                             f"{s.backdrive_efficiency:.2f}); vibration can still creep it")
+                lines.append(f"gear_train[{i}] (lead screw): no mean diameter given; back-drive unknown, "
+                             "assumed to back-drive (the cautious assumption for a counter that must see every "
+                             "motion); give diameter to judge it")
+            elif _backdrive_judged(s) <= 0:
+                lines.append(f"gear_train[{i}] ({s.kind}): self-locking, judged at {low} (back-drive "
+                             f"efficiency {_backdrive_judged(s):.2f} there); vibration can still creep it")
             elif isinstance(s, (WormStage, LeadScrew)):
-                lines.append(f"gear_train[{i}] ({s.kind}): back-drives, efficiency "
-                             f"{s.backdrive_efficiency:.2f}")
+                locked = s.backdrive_efficiency <= 0
+                lines.append(f"gear_train[{i}] ({s.kind}): back-drives at {low} (efficiency "
+                             f"{_backdrive_judged(s):.2f})" + ("; it locks only at the stated friction, "
+                                                                "which is too close to count on" if locked else ""))
         return tuple(lines)
 
     # -- algebra -----------------------------------------------------------
@@ -1079,3 +1124,8 @@ class GearTrain:
                 arrow = "same direction" if s.direction > 0 else "reversed"
                 out.append(f"[{i}] {s.kind}: {s.reduction} ({float(s.reduction):.4g}:1), {arrow}")
         return tuple(out)
+
+
+def _backdrive_judged(stage) -> float:
+    """A stage's back-drive efficiency as the train judges it (low friction for worms and sliding screws)."""
+    return getattr(stage, "backdrive_efficiency_at_low_friction", stage.backdrive_efficiency)

@@ -49,6 +49,12 @@ __all__ = [
     "decode_full_turn_deg",
     "half_turn_margin",
     "simulate_half_turn",
+    "LATCH_POWER_MODES",
+    "QuadrantWidths",
+    "quadrant_widths",
+    "edge_set_widths",
+    "worst_case_edge_shifts_deg",
+    "random_edge_shifts_deg",
 ]
 
 #: Codes (g1 g0 as a 2-bit integer) of quadrants 0, 1, 2, 3 in forward order: the 2-bit
@@ -62,6 +68,9 @@ LOST_POSITION_CAUTION = (
     "re-home after any battery event, and follow local codes, functional-safety standards "
     "(e.g. IEC 61508, ISO 13849) and licensed practice."
 )
+
+#: How the latches are supplied: only around each poll, or continuously.
+LATCH_POWER_MODES = ("during_polls", "always")
 
 # Nominal centre of each latch's "low -> high" edge (mech deg): g1 then g0.
 _LATCH_BASE_DEG = (180.0, 90.0)
@@ -257,11 +266,17 @@ class QuadrantLatches:
         Rotation of the latch pair against the AMR zero, e.g. magnet pole
         axis or board rotation (deg, signed), size below 90. Shifts all
         edges alike.
+    powered : {"during_polls", "always"}
+        "during_polls": the latches are switched on only around each poll,
+        so at each read a latch inside its hysteresis band may show either
+        state; "always": powered continuously, a latch keeps its state
+        inside the band (see :func:`quadrant_widths`).
     """
 
     switch_point_tolerance_deg: float = 5.0
     hysteresis_deg: float = 2.0
     magnet_misalignment_deg: float = 0.0
+    powered: str = "during_polls"
 
     def __post_init__(self):
         name = type(self).__name__
@@ -275,6 +290,9 @@ class QuadrantLatches:
                 or not math.isfinite(float(mis)) or abs(float(mis)) >= 90.0:
             raise DesignValueError(f"{name}.magnet_misalignment_deg", mis, "in (-90, 90)", unit="deg")
         object.__setattr__(self, "magnet_misalignment_deg", float(mis))
+        if self.powered not in LATCH_POWER_MODES:
+            raise DesignValueError(f"{name}.powered", self.powered, "one of " + ", ".join(
+                repr(m) for m in LATCH_POWER_MODES))
 
     def code(self, angle_path_deg, switch_shift_deg=(0.0, 0.0)) -> np.ndarray:
         """Latch Gray codes along a path of mechanical angles, with hysteresis.
@@ -461,3 +479,165 @@ def simulate_half_turn(latches: QuadrantLatches, angle_path_deg, fine_deg=None,
     combined = combine_half_turn_deg(fine, code)
     err = np.mod(combined - theta + 180.0, 360.0) - 180.0
     return HalfTurnTrace(theta, code, combined, err, np.abs(err) > 90.0)
+
+
+# ---------------------------------------------------------------------------
+# quadrant widths: what the counter's speed bounds rest on
+# ---------------------------------------------------------------------------
+
+@dataclass(frozen=True, slots=True)
+class QuadrantWidths:
+    """The narrowest quadrants a unit inside the latch tolerances can have.
+
+    The four latch edges sit nominally at 0°, 90°, 180° and 270° of the
+    motor shaft. Each may be shifted by up to ``edge_spread_deg`` either way
+    (derived, shown in docs/counter.md §6).
+
+    Attributes
+    ----------
+    narrowest_quadrant_deg : float
+        Narrowest distance between two neighbouring edges, 90° − 2·spread
+        (deg). Every read is decoded right while the shaft moves at most this
+        far from where it was at the previous read (inclusive).
+    narrowest_two_quadrants_deg : float
+        Narrowest distance between an edge and the next-but-one,
+        180° − 2·spread (deg). A read can be silently wrong only when the
+        shaft moves strictly more than this between reads.
+    edge_spread_deg : float
+        Largest shift of one edge from its nominal place (deg):
+        switch-point tolerance, plus half the hysteresis when the latches
+        are powered only around each poll.
+    switch_point_tolerance_deg, hysteresis_counted_deg : float
+        The two parts of ``edge_spread_deg`` (deg).
+    powered : str
+        "during_polls" or "always".
+    """
+
+    narrowest_quadrant_deg: float
+    narrowest_two_quadrants_deg: float
+    edge_spread_deg: float
+    switch_point_tolerance_deg: float
+    hysteresis_counted_deg: float
+    powered: str
+
+
+def quadrant_widths(latches: QuadrantLatches) -> QuadrantWidths:
+    """Narrowest quadrant and two-quadrant span of any unit inside the latch tolerances.
+
+    Each of the four edges may sit anywhere within ±spread of its nominal
+    place, independently (the switch-point tolerance covers the operate- and
+    release-point spread of each edge as well as placement), so two
+    neighbouring edges can close in by 2·spread:
+
+        spread = tolerance + (hysteresis / 2 if powered only around polls else 0)
+        narrowest quadrant = 90° − 2·spread
+        narrowest two quadrants = 180° − 2·spread
+
+    A latch powered only around each poll wakes up inside its hysteresis band
+    in either state, so each read may place an edge anywhere within ±h/2 of
+    its centre. A latch powered all the time switches at +h/2 going forward
+    and −h/2 going back: to show two steps the shaft must still reach one
+    full quadrant width past the position where the first edge was last
+    seen, so its hysteresis does not narrow the quadrant. Magnet
+    misalignment turns all four edges alike and changes no width (it matters
+    to the half-turn decision, :func:`half_turn_margin`).
+
+    Parameters
+    ----------
+    latches : QuadrantLatches
+
+    Returns
+    -------
+    QuadrantWidths
+
+    Raises
+    ------
+    DesignValueError
+        When the spread reaches 45° (neighbouring edges could meet: no
+        quadrant is left to count).
+
+    References
+    ----------
+    Derived, shown in docs/counter.md §6; it is the minimum state width of a
+    quadrature decoder applied to the latch edges.
+
+    Examples
+    --------
+    >>> w = quadrant_widths(QuadrantLatches(10.0, 4.0, powered="during_polls"))
+    >>> w.narrowest_quadrant_deg, w.narrowest_two_quadrants_deg
+    (66.0, 156.0)
+    >>> quadrant_widths(QuadrantLatches(10.0, 4.0, powered="always")).narrowest_quadrant_deg
+    70.0
+    """
+    if not isinstance(latches, QuadrantLatches):
+        raise DesignValueError("latches", latches, "a QuadrantLatches")
+    hyst = 0.5 * latches.hysteresis_deg if latches.powered == "during_polls" else 0.0
+    spread = latches.switch_point_tolerance_deg + hyst
+    if spread >= 45.0:
+        what = "switch_point_tolerance + hysteresis/2" if hyst else "switch_point_tolerance"
+        raise DesignValueError(f"latches.{what}", spread, "less than 45 (a quarter turn between edges, "
+                               "less twice the shift of each edge)", unit="deg",
+                               hint="tighten the latch tolerance" + (
+                                   ", or keep the latches powered (powered = 'always')" if hyst else ""))
+    return QuadrantWidths(
+        narrowest_quadrant_deg=90.0 - 2.0 * spread,
+        narrowest_two_quadrants_deg=180.0 - 2.0 * spread,
+        edge_spread_deg=spread,
+        switch_point_tolerance_deg=latches.switch_point_tolerance_deg,
+        hysteresis_counted_deg=hyst,
+        powered=latches.powered,
+    )
+
+
+def _edge_shifts(edge_shifts_deg, field: str = "edge_shifts_deg") -> np.ndarray:
+    s = np.asarray(edge_shifts_deg, dtype=float)
+    if s.shape[-1:] != (4,) or not np.all(np.isfinite(s)) or np.any(np.abs(s) >= 45.0):
+        raise DesignValueError(field, edge_shifts_deg,
+                               "four finite shifts (edges at 0, 90, 180, 270 deg), each within ±45", unit="deg")
+    return s
+
+
+def edge_set_widths(edge_shifts_deg) -> tuple[float, float]:
+    """Narrowest quadrant and two-quadrant span of one unit's edges, deg.
+
+    Parameters
+    ----------
+    edge_shifts_deg : sequence of 4 floats
+        Shift of the edges at 0°, 90°, 180° and 270° (deg, signed, each within ±45°).
+
+    Returns
+    -------
+    (narrowest_quadrant_deg, narrowest_two_quadrants_deg) : (float, float)
+    """
+    s = _edge_shifts(edge_shifts_deg)
+    edges = np.arange(4) * 90.0 + s
+    nxt = np.roll(edges, -1) + np.array([0, 0, 0, 360.0])
+    nxt2 = np.roll(edges, -2) + np.array([0, 0, 360.0, 360.0])
+    return float(np.min(nxt - edges)), float(np.min(nxt2 - edges))
+
+
+def worst_case_edge_shifts_deg(latches: QuadrantLatches) -> tuple[float, float, float, float]:
+    """Edge shifts of a unit at its tolerance limits with both narrowest spans, deg.
+
+    The pattern (+a, −a, −a, +a) for the edges at 0°, 90°, 180° and 270°
+    (a = :attr:`QuadrantWidths.edge_spread_deg`) makes the quadrant from 0°
+    to 90° 90° − 2a wide and the spans 270°→450° and 0°→180° 180° − 2a wide,
+    so one simulated unit shows both the ambiguous and the silent onset of
+    :func:`quadrant_widths`.
+    """
+    a = quadrant_widths(latches).edge_spread_deg
+    return (a, -a, -a, a)
+
+
+def random_edge_shifts_deg(latches: QuadrantLatches, rng: np.random.Generator, n: int) -> np.ndarray:
+    """Edge shifts of ``n`` units drawn uniformly inside the tolerances, deg (shape (n, 4)).
+
+    Each edge is drawn independently within ±spread
+    (:attr:`QuadrantWidths.edge_spread_deg`); a uniform draw is a plain
+    stand-in for an unknown spread (common practice for Monte Carlo yield
+    when only limits are given).
+    """
+    a = quadrant_widths(latches).edge_spread_deg
+    if isinstance(n, bool) or not isinstance(n, (int, np.integer)) or n < 1:
+        raise DesignValueError("n", n, "an integer >= 1")
+    return rng.uniform(-a, a, size=(int(n), 4))

@@ -47,6 +47,10 @@ __all__ = [
     "output_speed_to_motor_rpm",
     "output_travel_to_motor_deg",
     "merge_intervals",
+    "SegmentedMotion",
+    "BurstReplay",
+    "load_segments_csv",
+    "load_bursts_csv",
 ]
 
 DEG_PER_S_PER_RPM = 6.0  # 360 deg per revolution / 60 s per minute
@@ -819,3 +823,345 @@ def _read_source(source) -> tuple[str, str]:
     from .datafiles import read_text_file
 
     return read_text_file(source, "trace")
+
+
+# ---------------------------------------------------------------------------
+# general motion input: segments and replayed bursts
+# ---------------------------------------------------------------------------
+
+def _float_tuple(cls: str, name: str, values, unit: str) -> np.ndarray:
+    try:
+        a = np.asarray(values, dtype=np.float64).ravel()
+    except (TypeError, ValueError):
+        raise DesignValueError(f"{cls}.{name}", values, "a sequence of numbers", unit=unit) from None
+    bad = np.flatnonzero(~np.isfinite(a))
+    if bad.size:
+        raise DesignValueError(f"{cls}.{name}[{int(bad[0])}]", float(a[bad[0]]), "a finite number", unit=unit)
+    return a
+
+
+def _in_order(cls: str, starts: np.ndarray, ends: np.ndarray, what: str) -> None:
+    """Refuse parts that overlap or come out of time order, naming the first one."""
+    overlap = np.flatnonzero(starts[1:] < ends[:-1])
+    if overlap.size:
+        k = int(overlap[0]) + 1
+        raise DesignValueError(f"{cls}.starts_s[{k}]", float(starts[k]),
+                               f">= the end of {what} {k - 1} ({float(ends[k - 1]):g} s)", unit="s",
+                               hint=f"{what}s are in time order and do not overlap")
+
+
+@dataclass(frozen=True, slots=True)
+class SegmentedMotion(MotionProfile):
+    """Motion made of segments, each with a start, a duration, a start speed and an acceleration.
+
+    Inside segment k (``starts_s[k]`` ≤ t ≤ ``starts_s[k] + durations_s[k]``)
+    the motor turns at v_k + a_k·τ (τ = t − start); between segments the
+    shaft rests where the previous one left it. The angle is the exact
+    integral, continuous from one segment to the next. A time is located
+    with one binary search over the segment starts, so evaluation costs
+    O(log m) per time for m segments, never O(m).
+
+    Parameters
+    ----------
+    starts_s : sequence of float
+        Segment start times, s (≥ 0, increasing; a segment may not start
+        before the previous one ends).
+    durations_s : sequence of float
+        Segment durations, s (> 0).
+    start_speeds_rpm : sequence of float
+        Motor speed at the start of each segment, rpm (signed).
+    accelerations_rpm_per_s : sequence of float
+        Constant motor acceleration in each segment, rpm/s (signed).
+    start_angle_deg : float
+        Motor angle before the first segment, deg.
+    driven : bool
+        True if the motor drives this motion (the counter tracks it).
+
+    Examples
+    --------
+    >>> m = SegmentedMotion((0.0, 2.0), (1.0, 1.0), (0.0, 60.0), (60.0, -60.0))
+    >>> [round(float(a), 9) for a in m.angle_deg([0.5, 1.0, 1.5, 3.0])]
+    [45.0, 180.0, 180.0, 360.0]
+    """
+
+    starts_s: tuple
+    durations_s: tuple
+    start_speeds_rpm: tuple
+    accelerations_rpm_per_s: tuple
+    start_angle_deg: float = 0.0
+    driven: bool = False
+    _tables: tuple = field(init=False, repr=False, compare=False, default=None)
+
+    def __post_init__(self):
+        c = "SegmentedMotion"
+        st = _float_tuple(c, "starts_s", self.starts_s, "s")
+        du = _float_tuple(c, "durations_s", self.durations_s, "s")
+        v = _float_tuple(c, "start_speeds_rpm", self.start_speeds_rpm, "rpm")
+        a = _float_tuple(c, "accelerations_rpm_per_s", self.accelerations_rpm_per_s, "rpm/s")
+        if not (st.size == du.size == v.size == a.size) or st.size == 0:
+            raise DesignValueError(f"{c}.starts_s", f"{st.size} starts, {du.size} durations, {v.size} speeds, "
+                                   f"{a.size} accelerations", "at least one segment, as many of each")
+        if np.any(st < 0):
+            k = int(np.flatnonzero(st < 0)[0])
+            raise DesignValueError(f"{c}.starts_s[{k}]", float(st[k]), ">= 0", unit="s")
+        if np.any(du <= 0):
+            k = int(np.flatnonzero(du <= 0)[0])
+            raise DesignValueError(f"{c}.durations_s[{k}]", float(du[k]), "> 0", unit="s")
+        ends = st + du
+        _in_order(c, st, ends, "segment")
+        _num(c, "start_angle_deg", self.start_angle_deg, "deg")
+        for name, arr in (("starts_s", st), ("durations_s", du), ("start_speeds_rpm", v),
+                          ("accelerations_rpm_per_s", a)):
+            object.__setattr__(self, name, tuple(arr.tolist()))
+        vd, ad = v * DEG_PER_S_PER_RPM, a * DEG_PER_S_PER_RPM
+        moved = vd * du + 0.5 * ad * du * du
+        # Angle at the start of each segment; row 0 stands for "before the first segment"
+        # (zero speed and duration, the start angle).
+        at_start = self.start_angle_deg + np.concatenate(([0.0], np.cumsum(moved)[:-1]))
+        base = np.concatenate(([self.start_angle_deg], at_start))
+        object.__setattr__(self, "_tables", (
+            np.concatenate(([0.0], st)), np.concatenate(([0.0], du)), np.concatenate(([0.0], vd)),
+            np.concatenate(([0.0], ad)), base, st, ends))
+
+    @property
+    def peak_speed_rpm(self) -> float:
+        """Largest motor speed magnitude anywhere in the segments, rpm."""
+        v = np.asarray(self.start_speeds_rpm)
+        end = v + np.asarray(self.accelerations_rpm_per_s) * np.asarray(self.durations_s)
+        return float(max(np.max(np.abs(v)), np.max(np.abs(end))))
+
+    def angle_deg(self, t_s):
+        t = np.asarray(t_s, dtype=np.float64)
+        s0, d0, v0, a0, base, starts, _ = self._tables
+        i = np.searchsorted(starts, t, side="right")
+        tau = np.clip(t - s0[i], 0.0, d0[i])
+        return base[i] + tau * (v0[i] + 0.5 * a0[i] * tau)
+
+    def motion_intervals(self):
+        _, d0, v0, a0, _, starts, ends = self._tables
+        moving = (v0[1:] != 0.0) | (a0[1:] != 0.0)
+        return merge_intervals(starts[moving], ends[moving])
+
+    def driven_intervals(self):
+        if not self.driven:
+            return np.empty(0), np.empty(0)
+        _, _, _, _, _, starts, ends = self._tables
+        return merge_intervals(starts, ends)
+
+
+@dataclass(frozen=True, slots=True)
+class BurstReplay(MotionProfile):
+    """Given bursts replayed: each ramps up, cruises and ramps down at a constant acceleration.
+
+    Burst k starts at ``starts_s[k]``, accelerates at ``accelerations_rpm_per_s[k]``
+    (signed: its sign is the direction) for ``ramps_s[k]``, cruises at the
+    speed reached for ``cruises_s[k]`` and decelerates to rest in another
+    ``ramps_s[k]``. A logged field history replays without stitching traces;
+    evaluation is that of :class:`SegmentedMotion` (three segments a burst).
+
+    Parameters
+    ----------
+    starts_s, ramps_s, cruises_s : sequence of float
+        Burst starts (≥ 0, in time order, not overlapping), ramp times (> 0)
+        and cruise times (≥ 0), s.
+    accelerations_rpm_per_s : sequence of float
+        Motor acceleration of each burst's ramps, rpm/s (signed, non-zero).
+    start_angle_deg : float
+        Motor angle before the first burst, deg.
+    driven : bool
+        True if the motor drives the bursts.
+
+    Examples
+    --------
+    >>> b = BurstReplay((1.0,), (0.5,), (2.0,), (120.0,))
+    >>> round(b.peak_speed_rpm, 9), round(float(b.angle_deg(10.0)), 9)
+    (60.0, 900.0)
+    """
+
+    starts_s: tuple
+    ramps_s: tuple
+    cruises_s: tuple
+    accelerations_rpm_per_s: tuple
+    start_angle_deg: float = 0.0
+    driven: bool = False
+    _segments: SegmentedMotion = field(init=False, repr=False, compare=False, default=None)
+
+    def __post_init__(self):
+        c = "BurstReplay"
+        st = _float_tuple(c, "starts_s", self.starts_s, "s")
+        ramp = _float_tuple(c, "ramps_s", self.ramps_s, "s")
+        cruise = _float_tuple(c, "cruises_s", self.cruises_s, "s")
+        acc = _float_tuple(c, "accelerations_rpm_per_s", self.accelerations_rpm_per_s, "rpm/s")
+        if not (st.size == ramp.size == cruise.size == acc.size) or st.size == 0:
+            raise DesignValueError(f"{c}.starts_s", f"{st.size} starts, {ramp.size} ramps, {cruise.size} cruises, "
+                                   f"{acc.size} accelerations", "at least one burst, as many of each")
+        for name, arr, ok, allowed in (("ramps_s", ramp, ramp > 0, "> 0"), ("cruises_s", cruise, cruise >= 0, ">= 0"),
+                                       ("accelerations_rpm_per_s", acc, acc != 0, "non-zero")):
+            if not np.all(ok):
+                k = int(np.flatnonzero(~ok)[0])
+                raise DesignValueError(f"{c}.{name}[{k}]", float(arr[k]), allowed)
+        ends = st + 2 * ramp + cruise
+        _in_order(c, st, ends, "burst")
+        for name, arr in (("starts_s", st), ("ramps_s", ramp), ("cruises_s", cruise),
+                          ("accelerations_rpm_per_s", acc)):
+            object.__setattr__(self, name, tuple(arr.tolist()))
+        top = acc * ramp
+        # Three segments a burst: ramp up, cruise (dropped when zero long), ramp down.
+        seg_start = np.stack([st, st + ramp, st + ramp + cruise], axis=1)
+        seg_dur = np.stack([ramp, cruise, ramp], axis=1)
+        seg_v = np.stack([np.zeros_like(top), top, top], axis=1)
+        seg_a = np.stack([acc, np.zeros_like(acc), -acc], axis=1)
+        keep = (seg_dur > 0).ravel()
+        object.__setattr__(self, "_segments", SegmentedMotion(
+            seg_start.ravel()[keep], seg_dur.ravel()[keep], seg_v.ravel()[keep], seg_a.ravel()[keep],
+            start_angle_deg=self.start_angle_deg, driven=self.driven))
+
+    @property
+    def peak_speed_rpm(self) -> float:
+        """Largest cruise speed magnitude, rpm."""
+        return float(np.max(np.abs(np.asarray(self.accelerations_rpm_per_s) * np.asarray(self.ramps_s))))
+
+    def angle_deg(self, t_s):
+        return self._segments.angle_deg(t_s)
+
+    def motion_intervals(self):
+        return self._segments.motion_intervals()
+
+    def driven_intervals(self):
+        return self._segments.driven_intervals()
+
+
+_ACCEL_UNITS = {"rpm/s": DEG_PER_S_PER_RPM, "deg/s^2": 1.0, "deg/s2": 1.0, "rad/s^2": 180.0 / math.pi,
+                "rad/s2": 180.0 / math.pi}
+_LINEAR_ACCEL_UNITS = {"mm/s^2": 1.0, "mm/s2": 1.0, "m/s^2": 1000.0, "m/s2": 1000.0}
+
+
+def _table_csv(source, columns: tuple[tuple[str, dict], ...]) -> tuple[str, list[int], list[str], list[np.ndarray]]:
+    """Read a CSV with a 'name [unit]' header of the given columns; values in the table's base units.
+
+    Returns the source name, the line numbers (header first, then each data row), the units
+    written and one array per column.
+    """
+    name, text = _read_source(source)
+    header = None
+    rows: list[tuple[int, list[str]]] = []
+    for n, raw in enumerate(text.splitlines(), start=1):
+        line = raw.strip()
+        if not line or line.startswith("#"):
+            continue
+        cells = [cell.strip() for cell in line.split(",")]
+        if header is None:
+            header = (n, cells)
+        else:
+            rows.append((n, cells))
+    want = ",".join(f"{col} [unit]" for col, _ in columns)
+    if header is None:
+        raise DesignFileError("", f"no header line; expected {want!r}", source=name)
+    hn, cells = header
+    if len(cells) != len(columns):
+        raise DesignFileError("header", f"expected {len(columns)} columns {want!r}, got {cells}", source=name,
+                              line=hn)
+    scales, units = [], []
+    for cell, (col, allowed) in zip(cells, columns):
+        m = _HEADER.match(cell)
+        unit = m.group(2).replace(" ", "") if m else ""
+        if not m or m.group(1).lower() != col or unit not in allowed:
+            raise DesignFileError("header", f"column {cell!r} must be '{col} [unit]' with unit one of "
+                                  f"{sorted(allowed)}", source=name, line=hn)
+        scales.append(allowed[unit])
+        units.append(unit)
+    if not rows:
+        raise DesignFileError("", "no data rows", source=name, line=hn)
+    values = np.empty((len(rows), len(columns)))
+    for r, (n, row) in enumerate(rows):
+        if len(row) != len(columns):
+            raise DesignFileError("row", f"expected {len(columns)} values, got {len(row)}", source=name, line=n)
+        try:
+            nums = [float(x) for x in row]
+        except ValueError:
+            raise DesignFileError("row", f"not a number in {row}", source=name, line=n) from None
+        if not all(math.isfinite(x) for x in nums):
+            raise DesignFileError("row", f"values must be finite, got {row}", source=name, line=n)
+        values[r] = nums
+    return name, [hn] + [n for n, _ in rows], units, [values[:, k] * scales[k] for k in range(len(columns))]
+
+
+def _output_side(profile, train, linear: bool, at_output: bool, name: str, line: int, start_angle_deg: float):
+    if (linear or at_output) and train is None:
+        raise DesignFileError("train", "an output-side motion needs a gear train to map it to the motor",
+                              source=name, line=line)
+    if linear and train.output_unit != "mm":
+        raise DesignFileError("header", f"linear units need a linear output, the train's output is in "
+                              f"{train.output_unit}", source=name, line=line)
+    if not linear and at_output and train.output_unit != "deg":
+        raise DesignFileError("header", "rotary units at the output need a rotary output (the train's output "
+                              f"is in {train.output_unit})", source=name, line=line)
+    if not (linear or at_output):
+        return profile
+    wrapped = AtOutput(profile, train)
+    return CombinedMotion((wrapped, Still(start_angle_deg))) if start_angle_deg else wrapped
+
+
+def _check_rows(exc: DesignValueError, name: str, lines: list[int]):
+    # A bad row found by the profile (an overlap, a zero duration) names the line of the file.
+    m = re.search(r"\[(\d+)\]", exc.field)
+    row = int(m.group(1)) if m else None
+    return DesignFileError("row", str(exc), source=name, line=lines[0] if row is None else lines[1 + row])
+
+
+def load_segments_csv(source, *, train=None, at_output: bool = False, driven: bool = False,
+                      start_angle_deg: float = 0.0) -> MotionProfile:
+    """Load a :class:`SegmentedMotion` from CSV with units in the header.
+
+    Header: ``start [s],duration [s],speed [rpm],acceleration [rpm/s]`` (times s, ms,
+    us, min, h; speeds rpm, deg/s, rad/s, rev/s or mm/s, m/s, um/s at a linear output;
+    accelerations rpm/s, deg/s^2, rad/s^2 or mm/s^2, m/s^2). One row per segment, with
+    the speed at its start. Speeds at the output (``at_output`` or linear units) are
+    mapped to the motor through ``train``.
+
+    Raises
+    ------
+    DesignFileError
+        Naming the file and the line of the first bad entry.
+    """
+    speed_units = {**_ANGULAR_SPEED_UNITS, **_LINEAR_SPEED_UNITS}
+    accel_units = {**_ACCEL_UNITS, **_LINEAR_ACCEL_UNITS}
+    name, lines, units, (st, du, v, a) = _table_csv(source, (("start", _TIME_UNITS), ("duration", _TIME_UNITS),
+                                                          ("speed", speed_units), ("acceleration", accel_units)))
+    linear = units[2] in _LINEAR_SPEED_UNITS
+    if linear != (units[3] in _LINEAR_ACCEL_UNITS):
+        raise DesignFileError("header", "speed and acceleration must both be rotary or both linear", source=name,
+                              line=lines[0])
+    # Profiles take rpm and rpm/s; output-side values stay in output units and AtOutput scales them.
+    try:
+        prof = SegmentedMotion(st, du, v / DEG_PER_S_PER_RPM, a / DEG_PER_S_PER_RPM,
+                               start_angle_deg=0.0 if (linear or at_output) else start_angle_deg, driven=driven)
+    except DesignValueError as exc:
+        raise _check_rows(exc, name, lines) from None
+    return _output_side(prof, train, linear, at_output, name, lines[0], start_angle_deg)
+
+
+def load_bursts_csv(source, *, train=None, at_output: bool = False, driven: bool = False,
+                    start_angle_deg: float = 0.0) -> MotionProfile:
+    """Load a :class:`BurstReplay` from CSV with units in the header.
+
+    Header: ``start [s],ramp [s],cruise [s],acceleration [rpm/s]`` (units as for
+    :func:`load_segments_csv`); one row per burst, the acceleration signed by the
+    burst's direction.
+
+    Raises
+    ------
+    DesignFileError
+        Naming the file and the line of the first bad entry.
+    """
+    accel_units = {**_ACCEL_UNITS, **_LINEAR_ACCEL_UNITS}
+    name, lines, units, (st, ramp, cruise, a) = _table_csv(
+        source, (("start", _TIME_UNITS), ("ramp", _TIME_UNITS), ("cruise", _TIME_UNITS),
+                 ("acceleration", accel_units)))
+    linear = units[3] in _LINEAR_ACCEL_UNITS
+    try:
+        prof = BurstReplay(st, ramp, cruise, a / DEG_PER_S_PER_RPM,
+                           start_angle_deg=0.0 if (linear or at_output) else start_angle_deg, driven=driven)
+    except DesignValueError as exc:
+        raise _check_rows(exc, name, lines) from None
+    return _output_side(prof, train, linear, at_output, name, lines[0], start_angle_deg)

@@ -162,7 +162,11 @@ class AdaptiveSchedule(_Common):
         Fast polling continues until this long after the last read that saw a
         step (or after a driven move ends), s.
     wake_time_s, settle_time_s, poll_time_s, jitter_s, seed, track_when_driven
-        As for :class:`FixedSchedule`.
+        As for :class:`FixedSchedule` (``jitter_s`` applies to the slow polls).
+    fast_jitter_s : float, optional
+        Half-width of the timing jitter of the fast polls, s; None: the same
+        as ``jitter_s``. A wake timer whose error is a fraction of its period
+        gives each period its own jitter.
 
     Notes
     -----
@@ -181,6 +185,7 @@ class AdaptiveSchedule(_Common):
     jitter_s: float = 0.0
     seed: int = 0
     track_when_driven: bool = True
+    fast_jitter_s: float | None = None
 
     def __post_init__(self):
         for name in ("poll_period_s", "fast_period_s"):
@@ -190,9 +195,30 @@ class AdaptiveSchedule(_Common):
         if self.fast_period_s >= self.poll_period_s:
             raise DesignValueError("AdaptiveSchedule.fast_period_s", self.fast_period_s,
                                    f"less than poll_period_s ({self.poll_period_s} s)", unit="s")
-        self._check_common("AdaptiveSchedule", self.fast_period_s)
+        if self.fast_jitter_s is None:
+            self._check_common("AdaptiveSchedule", self.fast_period_s)
+            return
+        object.__setattr__(self, "fast_jitter_s", _positive("AdaptiveSchedule", "fast_jitter_s",
+                                                            self.fast_jitter_s, allow_zero=True))
+        self._check_common("AdaptiveSchedule", self.poll_period_s)
+        awake = self.awake_per_poll_s
+        if awake >= self.fast_period_s:
+            raise DesignValueError(
+                "AdaptiveSchedule.wake_time_s + settle_time_s + poll_time_s", awake,
+                f"less than the shortest poll period ({self.fast_period_s} s)", unit="s",
+                hint="the electronics must fall asleep again before the next poll")
+        if self.fast_jitter_s * 2 >= self.fast_period_s - awake:
+            raise DesignValueError(
+                "AdaptiveSchedule.fast_jitter_s", self.fast_jitter_s,
+                f"less than half of (fast poll period − awake time) = {(self.fast_period_s - awake) / 2} s",
+                unit="s", hint="larger jitter would reorder polls")
 
     @property
     def fastest_period_s(self) -> float:
         """The shortest time between polls, s."""
         return self.fast_period_s
+
+    @property
+    def fast_poll_jitter_s(self) -> float:
+        """Half-width of the jitter of the fast polls, s."""
+        return self.jitter_s if self.fast_jitter_s is None else self.fast_jitter_s

@@ -45,7 +45,7 @@ from .errors import DesignValueError
 from .motion import MotionProfile, merge_intervals
 from .schedule import GRID_TOLERANCE, AdaptiveSchedule, FixedSchedule, grid_count, grid_index
 
-__all__ = ["SimulationResult", "StepEvents", "simulate", "quadrant_index", "BOUNDARY_SNAP_QT"]
+__all__ = ["SimulationResult", "StepEvents", "simulate", "quadrant_index", "edge_index", "BOUNDARY_SNAP_QT"]
 
 #: Switching points are taken 1e-9 quarter-turn (about 1e-7°) early, so that a
 #: shaft sampled exactly on a boundary reads the same quadrant whatever the last
@@ -101,6 +101,63 @@ def quadrant_index(angle_deg) -> np.ndarray:
     """Unbounded quadrant index floor(angle/90°) of motor angles (int64)."""
     a = np.asarray(angle_deg, dtype=np.float64)
     return np.floor(a * (1.0 / 90.0) + BOUNDARY_SNAP_QT).astype(np.int64)
+
+
+def _edge_offsets(edge_shifts_deg) -> np.ndarray | None:
+    """Per-edge offsets in turns for :func:`edge_index`, or None for ideal edges."""
+    if edge_shifts_deg is None:
+        return None
+    from .latches import _edge_shifts
+
+    s = _edge_shifts(edge_shifts_deg, "simulate.edge_shifts_deg")
+    if s.shape != (4,):
+        raise DesignValueError("simulate.edge_shifts_deg", edge_shifts_deg, "four shifts (one unit)", unit="deg")
+    if not np.any(s):
+        return None
+    return (np.arange(4) * 90.0 + s) / 360.0 - 0.25 * BOUNDARY_SNAP_QT
+
+
+def _edge_index_into(a: np.ndarray, offsets: np.ndarray) -> np.ndarray:
+    """In place: motor angles (deg) -> number of the unit's edges passed, as float64."""
+    turns = a * (1.0 / 360.0)
+    np.subtract(turns, offsets[0], out=a)
+    np.floor(a, out=a)
+    tmp = np.empty_like(a)
+    for off in offsets[1:]:
+        np.subtract(turns, off, out=tmp)
+        np.floor(tmp, out=tmp)
+        a += tmp
+    a += 3.0
+    return a
+
+
+def _into(values: np.ndarray, out: np.ndarray) -> np.ndarray:
+    """``values`` copied into ``out`` unless they already are ``out``."""
+    if values is not out:
+        np.copyto(out, values)
+    return out
+
+
+def edge_index(angle_deg, edge_shifts_deg) -> np.ndarray:
+    """Unbounded quadrant index of motor angles for one unit's latch edges (int64).
+
+    The unit's edges sit at 90°·k + s_k (k = 0..3, repeating every turn);
+    the index is the number of edges at or below the angle, counted so that
+    ideal edges (all s_k = 0) give :func:`quadrant_index`.
+
+    Parameters
+    ----------
+    angle_deg : array_like
+        Motor angles, deg.
+    edge_shifts_deg : sequence of 4 floats
+        Shifts of the edges at 0°, 90°, 180°, 270°, deg (each within ±45°),
+        e.g. :func:`turnkit.latches.worst_case_edge_shifts_deg`.
+    """
+    offsets = _edge_offsets(edge_shifts_deg)
+    if offsets is None:
+        return quadrant_index(angle_deg)
+    a = np.array(angle_deg, dtype=np.float64, ndmin=1)
+    return _edge_index_into(a, offsets).astype(np.int64).reshape(np.shape(angle_deg))
 
 
 @dataclass(frozen=True, slots=True, eq=False)
@@ -240,7 +297,8 @@ class _EventLog:
 
 def simulate(profile: MotionProfile, schedule, duration_s: float, settings: CounterSettings | None = None,
              *, power_loss_s=(), rehome_on_drive: bool = True, trace_window_s=None,
-             trace_max_polls: int = 20_000, chunk_polls: int | None = None) -> SimulationResult:
+             trace_max_polls: int = 20_000, chunk_polls: int | None = None,
+             edge_shifts_deg=None) -> SimulationResult:
     """Run the counter through the schedule against the motion.
 
     Parameters
@@ -266,6 +324,13 @@ def simulate(profile: MotionProfile, schedule, duration_s: float, settings: Coun
         Reads decoded per array batch (memory bound). Default 65 536; 32 768
         for an adaptive schedule with jitter, whose random draws follow the
         batches (so there the results depend on this value).
+    edge_shifts_deg : sequence of 4 floats, optional
+        The latch edges of one unit: shifts of the edges at 0°, 90°, 180°
+        and 270° of the motor shaft, deg (e.g.
+        :func:`turnkit.latches.worst_case_edge_shifts_deg` or a draw of
+        :func:`turnkit.latches.random_edge_shifts_deg`). Both the counter's
+        reads and the truth use these edges (:func:`edge_index`). Default:
+        ideal edges every 90°.
 
     Returns
     -------
@@ -283,26 +348,32 @@ def simulate(profile: MotionProfile, schedule, duration_s: float, settings: Coun
     if not isinstance(settings, CounterSettings):
         raise DesignValueError("simulate.settings", type(settings).__name__, "a CounterSettings")
     if chunk_polls is None:
-        chunk_polls = 1 << 15 if isinstance(schedule, AdaptiveSchedule) and schedule.jitter_s else 1 << 16
+        chunk_polls = 1 << 15 if isinstance(schedule, AdaptiveSchedule) and _any_jitter(schedule) else 1 << 16
     if isinstance(chunk_polls, bool) or not isinstance(chunk_polls, int) or chunk_polls < 16:
         raise DesignValueError("simulate.chunk_polls", chunk_polls, "an integer >= 16")
+    offsets = _edge_offsets(edge_shifts_deg)
     run = _Run(profile, schedule, float(duration_s), settings, power_loss_s, bool(rehome_on_drive),
-               trace_window_s, int(trace_max_polls), chunk_polls)
+               trace_window_s, int(trace_max_polls), chunk_polls, edges=offsets)
     return run.execute()
+
+
+def _any_jitter(schedule) -> bool:
+    return bool(schedule.jitter_s or getattr(schedule, "fast_jitter_s", None))
 
 
 class _Run:
     def __init__(self, profile, schedule, duration, settings, power_loss, rehome, trace_window, trace_max,
-                 chunk, lean=True):
+                 chunk, lean=True, edges=None):
         self.profile, self.schedule, self.duration, self.settings = profile, schedule, duration, settings
         self.rehome, self.chunk, self.trace_max = rehome, chunk, trace_max
+        self.edges = edges  # None: ideal edges every 90 deg
         self.adaptive = isinstance(schedule, AdaptiveSchedule)
-        self.rng = schedule.rng() if schedule.jitter_s else None  # only jitter draws from it
+        self.rng = schedule.rng() if _any_jitter(schedule) else None  # only jitter draws from it
         self.t_buf, self.q_buf, self.d_buf = _work_buffers(chunk)
         self.count_range = (settings.min_count, settings.max_count)
         # Without jitter the adaptive schedule may take the one-burst shortcuts
         # (with jitter the random draws must follow the general path exactly).
-        self.lean = self.adaptive and schedule.jitter_s == 0.0 and lean
+        self.lean = self.adaptive and not _any_jitter(schedule) and lean
         s, e = profile.motion_intervals()
         s, e = merge_intervals(np.clip(s, 0.0, duration), np.clip(e, 0.0, duration))
         self.motion_s, self.motion_e = s, e
@@ -320,7 +391,7 @@ class _Run:
                    [(float(a), float(b), "power") for a, b in zip(ps, pe)]
         self.specials = sorted(specials)
         # Counter state.
-        self.q_origin = int(quadrant_index(profile.angle_deg(np.array([0.0])))[0])
+        self.q_origin = int(self._q(np.array([0.0]))[0])
         self.q_ref = self.q_origin
         self.count = settings.start_count
         self.last_dir = 0
@@ -373,7 +444,23 @@ class _Run:
 
     # ----------------------------------------------------------------- helpers
     def _q(self, times):
+        if self.edges is not None:
+            return _edge_index_into(np.array(self.profile.angle_deg(times), dtype=np.float64),
+                                    self.edges).astype(np.int64)
         return quadrant_index(self.profile.angle_deg(times))
+
+    def _read_index(self, times, q):
+        """Quadrant index at the read ``times`` written into ``q`` (float64), returned.
+
+        Ideal edges: floor(angle/90° + snap) straight into the work array; a unit's own
+        edges: :func:`edge_index` of the sampled angles.
+        """
+        if self.edges is not None:
+            return _edge_index_into(_into(self.profile._angle_deg_into(times, q), q), self.edges)  # noqa: SLF001
+        np.multiply(self.profile._angle_deg_into(times, q), 1.0 / 90.0, out=q)  # noqa: SLF001
+        q += BOUNDARY_SNAP_QT
+        np.floor(q, out=q)
+        return q
 
     def _truth(self, q):
         return self.settings.start_count + (q - self.q_origin)
@@ -475,10 +562,7 @@ class _Run:
         times *= period
         if anchor != 0.0:
             times += anchor
-        q = self.q_buf[:n]
-        np.multiply(self.profile._angle_deg_into(times, q), 1.0 / 90.0, out=q)  # noqa: SLF001
-        q += BOUNDARY_SNAP_QT
-        np.floor(q, out=q)
+        q = self._read_index(times, self.q_buf[:n])
         d = self.d_buf[:n]
         d[0] = q[0] - self.q_ref
         np.subtract(q[1:], q[:-1], out=d[1:])
@@ -524,7 +608,8 @@ class _Run:
         if decoded == AMBIGUOUS:
             if self.settings.ambiguous_policy is AmbiguousPolicy.FLAG_AND_HOLD:
                 return False
-            step = 2 * (self.last_dir or 1)
+            step = 0 if self.settings.ambiguous_policy is AmbiguousPolicy.FLAG_AND_CONTINUE \
+                else 2 * (self.last_dir or 1)
         else:
             step = decoded
         c_min, c_max = self.count_range
@@ -629,7 +714,8 @@ class _Run:
         k_cap = math.floor((t_b - anchor) / period + GRID_TOLERANCE)
         k_prev = 0
         group = 4096 if mode == "all" else 1
-        jitter = self.schedule.jitter_s
+        # Each schedule state polls with its own jitter (a fraction of its own period).
+        jitter = self.schedule.fast_poll_jitter_s if mode == "fast" else self.schedule.jitter_s
         w = i0
         while w < i1:
             if mode == "fast" and self.fast_until < S[w]:
@@ -655,13 +741,10 @@ class _Run:
                 k_lo = np.maximum(k_lo, before[:-1] + 1)
                 k_prev = int(before[-1])
             for nominal in self._grid_chunks(k_lo, k_hi, anchor, period):
-                times = nominal if jitter == 0.0 else self.schedule.jittered(nominal, self.rng)
+                times = nominal if jitter == 0.0 else nominal + self.rng.uniform(-jitter, jitter, nominal.size)
                 # Quadrant index kept in float64 (exact for |index| < 2**53) to
                 # save a conversion pass; _apply converts only when it decodes.
-                q = self.q_buf[:times.size]
-                np.multiply(self.profile._angle_deg_into(times, q), 1.0 / 90.0, out=q)  # noqa: SLF001
-                q += BOUNDARY_SNAP_QT
-                np.floor(q, out=q)
+                q = self._read_index(times, self.q_buf[:times.size])
                 if mode == "fast":
                     cut = self._fast_cut(times, q)
                     if cut is not None:
@@ -792,6 +875,8 @@ class _Run:
                 if flag:
                     stop = i + int(np.argmax(amb_seg))
                     steps = decoded[i:stop]
+                elif st.ambiguous_policy is AmbiguousPolicy.FLAG_AND_CONTINUE:
+                    steps = np.where(amb_seg, 0, decoded[i:])  # flagged, count kept, polling goes on
                 else:
                     steps = self._guess(decoded[i:], amb_seg)
             path = self.count + np.cumsum(steps)

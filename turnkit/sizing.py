@@ -64,7 +64,7 @@ from typing import Any
 import numpy as np
 
 from . import __version__
-from . import angle_error, battery as batt, bounds, gears, latches as latch_mod, power
+from . import angle_error, battery as batt, counting, gears, latches as latch_mod, power
 from . import sensor as sensor_mod
 from . import simulation as sim
 from .counter import CounterSettings
@@ -114,7 +114,7 @@ _CREEP_CAUTION = (
     "treat it as a brake."
 )
 
-_AMBIGUOUS_POLICY = {"hold": "flag_and_hold", "guess": "guess_last_direction"}
+_AMBIGUOUS_POLICY = {"hold": "flag_and_hold", "guess": "guess_last_direction", "continue": "flag_and_continue"}
 _HOURS_PER_YEAR = 8766.0
 
 
@@ -197,13 +197,7 @@ def build_sensor(design: ActuatorDesign) -> sensor_mod.BridgeSensor:
 
 def build_latches(design: ActuatorDesign) -> latch_mod.QuadrantLatches:
     """The :class:`~turnkit.latches.QuadrantLatches` of a design."""
-    lt = design.latches
-    try:
-        return latch_mod.QuadrantLatches(switch_point_tolerance_deg=lt.switch_point_tolerance_deg,
-                                         hysteresis_deg=lt.hysteresis_deg,
-                                         magnet_misalignment_deg=lt.magnet_misalignment_deg)
-    except DesignValueError as exc:
-        raise _relabel(exc, "latches") from None
+    return counting.latches_of(design)
 
 
 def build_counter(design: ActuatorDesign) -> CounterSettings:
@@ -225,8 +219,9 @@ def build_schedule(design: ActuatorDesign):
     try:
         if s.kind == "adaptive":
             fast_s = s.fast_poll_period_ms / 1e3
+            # The jitter is a fraction of each poll period, so each period has its own.
             return AdaptiveSchedule(poll_period_s=period_s, fast_period_s=fast_s, hold_s=s.hold_time_s,
-                                    jitter_s=s.jitter * fast_s, **common)
+                                    jitter_s=s.jitter * period_s, fast_jitter_s=s.jitter * fast_s, **common)
         return FixedSchedule(poll_period_s=period_s, jitter_s=s.jitter * period_s, **common)
     except DesignValueError as exc:
         raise _relabel(exc, "schedule") from None
@@ -418,6 +413,8 @@ def build_motion(sc: MotionScenario, train, base_dir: Path | None = None) -> tup
                              duration_s=sc.duration_s, boundary_deg=boundary)
             peak = 2 * math.pi * sc.frequency_Hz * amp_deg / 6.0
             return prof, sc.duration_s + 0.74, peak
+        if sc.kind in ("segments", "burst_replay"):
+            return _logged_motion(sc, train, base_dir, start_deg)
         if sc.kind == "trace":
             path = Path(sc.trace)
             if not path.is_absolute() and base_dir is not None:
@@ -461,10 +458,11 @@ def _sensor_of(sensor_design):
 
 
 @lru_cache(maxsize=512)
-def _simulate_scenario(sc: MotionScenario, stages: tuple, schedule, settings, base_dir: str | None):
+def _simulate_scenario(sc: MotionScenario, stages: tuple, schedule, settings, base_dir: str | None,
+                       edges: tuple | None = None):
     train = _train_cached(stages)[0]
     prof, duration, peak = build_motion(sc, train, Path(base_dir) if base_dir else None)
-    result = sim.simulate(prof, schedule, duration, settings)
+    result = sim.simulate(prof, schedule, duration, settings, edge_shifts_deg=edges)
     return result, peak
 
 
@@ -750,8 +748,13 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     add("output_resolution", "Output resolution", resolution_out, unit, "sensor", equation="output_resolution")
     sensor_err_out = train.output_resolution(motor_peak)
     accuracy_out = sensor_err_out + train.backlash_at_output()
-    add("output_accuracy", "Output accuracy (sensor peak error + backlash)", accuracy_out, unit, "sensor",
-        note=f"sensor {sensor_err_out:.3g} {unit} + backlash {train.backlash_at_output():.3g} {unit}")
+    creep_out, creep_warns = _belt_creep(train, stroke)   # friction belts slip: creep over the stroke
+    accuracy_out += creep_out
+    warns.extend(creep_warns)
+    add("output_accuracy", "Output accuracy (sensor peak error + backlash"
+        + (" + belt creep)" if creep_warns else ")"), accuracy_out, unit, "sensor",
+        note=f"sensor {sensor_err_out:.3g} {unit} + backlash {train.backlash_at_output():.3g} {unit}"
+             + (f" + belt creep {creep_out:.3g} {unit}" if creep_warns else ""))
     target_res = req.output_resolution_mm if unit == "mm" else req.output_resolution_deg
     if target_res is not None:
         need = float(ratio) * resolution_out / target_res
@@ -782,16 +785,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
 
     # -- schedule and speed bounds -------------------------------------------
     schedule = build_schedule(design)
-    guaranteed_rpm = bounds.schedule_speed_limit_rpm(schedule)
-    silent_rpm = bounds.silent_error_speed_rpm(bounds.worst_interval_s(schedule))
     add("poll_period_ms", "Poll period while asleep", design.schedule.poll_period_ms, "ms", "schedule")
-    add("trackable_motor_speed_rpm", "Fastest motor speed always counted right while asleep", guaranteed_rpm,
-        "rpm", "schedule", equation="max_trackable_speed")
-    out_speed, out_speed_unit = output_speed_for_motor_rpm(guaranteed_rpm, train)
-    add("trackable_output_speed", "Fastest output speed always counted right while asleep", out_speed,
-        out_speed_unit, "schedule")
-    add("silent_error_motor_speed_rpm", "Motor speed above which miscounts can be silent", silent_rpm, "rpm",
-        "schedule", equation="silent_error_onset_speed")
     awake_s = schedule.wake_time_s + schedule.settle_time_s + schedule.poll_time_s
     add("duty_cycle_percent", "Duty cycle (awake share while idle)", 100 * awake_s / schedule.poll_period_s, "%",
         "schedule", equation="duty_cycle")
@@ -801,19 +795,19 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
         raise DesignValueError("requirements.backdrive_speed", wrong_speed,
                                "given in mm/s for a linear output, rpm for a rotary one",
                                unit="rpm" if unit == "mm" else "mm/s")
-    max_period_s = None
     required_rpm = None
     if req_speed is not None:
         required_rpm = motor_rpm_for_output_speed(req_speed, train, "mm/s" if unit == "mm" else "rpm",
                                                   "requirements.backdrive_speed")
-        max_period_s = bounds.max_poll_period_s(required_rpm)
-        add("backdrive_motor_speed_rpm", "Motor speed at the required back-drive speed", required_rpm, "rpm",
-            "schedule", equation="backdrive_motor_speed")
-        add("max_poll_period_ms", "Longest poll period for the required back-drive speed", max_period_s * 1e3,
-            "ms", "schedule", equation="max_poll_period")
-        checks.append(_check("backdrive_speed", "Counter follows the required back-drive speed while asleep",
-                            out_speed, req_speed, out_speed_unit, ">=",
-                            advice=_backdrive_advice(max_period_s, awake_s)))
+    # Counting with real latches (turnkit.counting): limits, the back-drive check and its advice.
+    limits = counting.counting_limits(design)
+    out_per_rpm, out_speed_unit = output_speed_for_motor_rpm(1.0, train)
+    report = counting.backdrive_report(design, limits, required_rpm, req_speed, out_speed_unit, out_per_rpm,
+                                       float(ratio))
+    values.extend(report.values)
+    eq_keys.extend(v.equation for v in report.values if v.equation)
+    checks.extend([report.check] if report.check is not None else [])
+    guaranteed_rpm, max_period_s = limits.trackable_rpm, report.max_poll_period_s
 
     # -- power and battery ---------------------------------------------------
     pack = build_battery(design)
@@ -890,7 +884,8 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
             try:
                 need_cap = float(batt.capacity_needed_mAh(budget.average_current_uA, req.battery_life_years, pack,
                                                           temperature_C=temperature_C, usable_fraction=usable))
-                advice = f"a battery of at least {need_cap:.4g} mAh, or a lower average current"
+                # Rounded up, so that a battery of the size named does last the life.
+                advice = f"a battery of at least {counting.round_up_sig(need_cap):.4g} mAh, or a lower average current"
                 if req_speed is not None and max_period_s > schedule.poll_period_s * 1.01:
                     advice += (f"; polling only as often as the back-drive speed needs (every "
                                f"{max_period_s * 1e3:.4g} ms) also saves charge")
@@ -940,29 +935,18 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
                 f"longest that follows {req_speed:g} {out_speed_unit}) lasts only {life_at_limit:.3g} years "
                 f"against {req.battery_life_years:g} required.")
             warns.extend(_relax_lines(profile, pack, schedule, required_rpm, req.battery_life_years, temperature_C,
-                                      train, usable))
+                                      train, usable, limits=limits))
 
     # -- motion scenarios ---------------------------------------------------------
     scenarios: list[Scenario] = []
     base = str(Path(base_dir).resolve()) if base_dir is not None else None
+    edges = counting.unit_edge_shifts_deg(design)
     if simulate:
         _refuse_unbounded_work(design, base)
         for sc in design.motion:
-            result, peak = _simulate_scenario(sc, stages, schedule, settings, base)
-            _, err = result.output_error(train)
-            max_err = float(np.max(np.abs(err))) if np.size(err) else 0.0
-            note = ""
-            if result.silent_error_count:
-                note = "silent miscounts: the count is wrong with no error flagged"
-            elif result.ambiguous_count:
-                note = "ambiguous steps flagged: position no longer trusted, re-homing needed"
-            elif peak > guaranteed_rpm:
-                note = "faster than the guaranteed bound at times, but counted right in this run"
-            scenarios.append(Scenario(
-                name=sc.name, kind=sc.kind, duration_s=result.duration_s, peak_motor_speed_rpm=peak,
-                polls=result.poll_count, final_count_error_qt=result.final_count_error,
-                ambiguous_count=result.ambiguous_count, silent_error_count=result.silent_error_count,
-                overflow_count=result.overflow_count, max_output_error=max_err, output_unit=unit, note=note))
+            result, peak = _simulate_scenario(sc, stages, schedule, settings, base, edges)
+            scenarios.append(counting.scenario_row(design, sc, result, peak, train, limits, unit,
+                                                   _scenario_peak_to_peak(sc, train)))
 
     # -- accuracy budget over temperature, magnet fields, count keeping (its own stage) --
     budget_stage = _accuracy_stage(design, curves)
@@ -974,10 +958,14 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     # -- curves ----------------------------------------------------------------
     curve_list: list[Curve] = []
     if curves:
+        # The limit line and shading count every speed (requirement and scenarios) with the margin.
+        allowed_s, allowed_why = counting.allowed_poll_period_s(limits, required_rpm,
+                                                                _scenario_peaks(design, stages, base))
         curve_list.extend(budget_stage.curves)
         curve_list.extend(_curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
-                                  max_period_s, required_rpm, req_speed, out_speed_unit, temperature_C,
-                                  guaranteed_rpm, resolution_out, base, usable))
+                                  allowed_s, required_rpm, req_speed, out_speed_unit, temperature_C,
+                                  guaranteed_rpm, resolution_out, base, usable, edges=edges,
+                                  limit_note=(allowed_why, limits.margin)))
         if sweep_curve is not None:
             curve_list.append(sweep_curve)
 
@@ -996,8 +984,11 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
         warnings=tuple(dict.fromkeys(warns)),
         cautions=tuple(dict.fromkeys(cautions)),
         assumptions=tuple(assumptions) + (
-            ("Guaranteed counting: less than a quarter-turn of the motor between two polls, any phase",
-             "2-bit Gray code, one bit changes per step: F. Gray, US patent 2,632,058 (1953)"),
+            ("Counted by the model: at most the narrowest quadrant between two latch edges (worst unit inside "
+             "the latch tolerances) between two polls, any phase, the longest interval between polls "
+             "including jitter",
+             "2-bit Gray code, one bit changes per step: F. Gray, US patent 2,632,058 (1953); narrowest "
+             "quadrant (derived, shown in docs/counter.md)"),
             ("Gear ratios are exact fractions of tooth counts; lengths are taken at their decimal value",
              "Shigley's Mechanical Engineering Design, ch. 13"),
         ),
@@ -1006,7 +997,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
 
 
 def _relax_lines(profile, pack, schedule, required_rpm, life_years, temperature_C, train,
-                 usable: float = 1.0) -> list[str]:
+                 usable: float = 1.0, limits=None) -> list[str]:
     """How far each requirement must move for some poll period to meet both (symbolic model)."""
     from .equations import relax_advice
 
@@ -1021,7 +1012,9 @@ def _relax_lines(profile, pack, schedule, required_rpm, life_years, temperature_
             sleep_current_uA=totals["asleep"], awake_current_uA=awake_uA, awake_time_s=t_awake,
             temperature_derating=float(pack.temperature_factor(temperature_C)), usable_fraction=usable,
             self_discharge_per_year=pack.self_discharge_per_year,
-            travel_per_turn=float(train.travel_per_motor_turn), output_unit=train.output_unit)
+            travel_per_turn=float(train.travel_per_motor_turn), output_unit=train.output_unit,
+            **({} if limits is None else dict(narrowest_quadrant_deg=limits.widths.narrowest_quadrant_deg,
+                                              jitter=limits.jitter, margin=limits.margin)))
     except DesignValueError as exc:
         return [f"Relaxation advice unavailable: {exc}"]
     rec = advice.recommended
@@ -1030,7 +1023,8 @@ def _relax_lines(profile, pack, schedule, required_rpm, life_years, temperature_
 
 
 def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw, max_period_s, required_rpm,
-            req_speed, speed_unit, temperature_C, guaranteed_rpm, resolution_out, base, usable=1.0) -> list[Curve]:
+            req_speed, speed_unit, temperature_C, guaranteed_rpm, resolution_out, base, usable=1.0, edges=None,
+            limit_note=("the required back-drive speed", 0.0)) -> list[Curve]:
     unit = train.output_unit
     out: list[Curve] = []
     period_ms = schedule.poll_period_s * 1e3
@@ -1069,12 +1063,13 @@ def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
     if max_period_s is not None:
         vlines = (Marker("longest allowed poll period", max_period_s * 1e3, 0.0),)
         if max_period_s < hi_s:
-            bands = (Band("misses back-drive", max_period_s * 1e3, hi_s * 1e3),)
+            bands = (Band("not counted with the margin", max_period_s * 1e3, hi_s * 1e3),)
     out.append(Curve(key, title, "poll period", "ms", ylab, yunit, series,
                      markers=(Marker("this design", period_ms, marker_y),), bands=bands, vlines=vlines,
                      log_x=True, log_y=True,
-                     note=(f"longest poll period for the required back-drive speed: {max_period_s * 1e3:.4g} ms"
-                           if max_period_s is not None else "no back-drive speed required")))
+                     note=(f"longest poll period counting every speed with {limit_note[1] * 100:.3g} % margin "
+                           f"(latch tolerances and jitter included): {max_period_s * 1e3:.4g} ms, set by "
+                           f"{limit_note[0]}" if max_period_s is not None else "no back-drive speed required")))
 
     # (b) a simulated back-drive event at the required speed (or the fastest scenario's)
     speed_rpm = required_rpm
@@ -1087,7 +1082,7 @@ def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
     move_s = max(duration - 2.5 * schedule.poll_period_s, schedule.poll_period_s)
     prof = ConstantSpeed(speed_rpm=speed_rpm, start_s=1.3 * schedule.poll_period_s, duration_s=move_s)
     res = sim.simulate(prof, schedule, duration, settings,
-                       trace_window_s=(0.0, duration), trace_max_polls=200)
+                       trace_window_s=(0.0, duration), trace_max_polls=200, edge_shifts_deg=edges)
     t_ms = res.trace_time_s * 1e3
     true_q = res.trace_angle_deg / 90.0
     amb_t = np.asarray(res.ambiguous_events.times_s, dtype=float) if res.ambiguous_count else np.array([])
@@ -1944,3 +1939,123 @@ def _service_life(checks: list, life_years: float, shelf_years: float, required:
                           "or plan a battery change")
             checks[k] = _check("battery_life", c.label, service, c.target, c.unit, c.comparison, advice=advice)
     return value
+
+
+# ---------------------------------------------------------------------------
+# scenario speeds for the counting limits
+# ---------------------------------------------------------------------------
+
+def _scenario_peak_to_peak(sc: MotionScenario, train) -> float | None:
+    """Peak-to-peak motor angle of a vibration scenario, deg (None for other kinds)."""
+    if sc.kind != "vibration":
+        return None
+    amp = _scenario_motor(sc, train, "amplitude")[0]
+    return None if amp is None else 2.0 * abs(amp)
+
+
+@lru_cache(maxsize=256)
+def _scenario_peak(sc: MotionScenario, stages: tuple, base_dir: str | None) -> float:
+    train = _train_cached(stages)[0]
+    return float(build_motion(sc, train, Path(base_dir) if base_dir else None)[2])
+
+
+def _scenario_peaks(design: ActuatorDesign, stages: tuple, base_dir: str | None) -> tuple:
+    """(name, kind, peak motor rpm, peak-to-peak motor deg or None) of every scenario that can be built."""
+    train = _train_cached(stages)[0]
+    out = []
+    for sc in design.motion:
+        try:
+            out.append((sc.name, sc.kind, _scenario_peak(sc, stages, base_dir), _scenario_peak_to_peak(sc, train)))
+        except (DesignValueError, OSError, ValueError):
+            continue  # a scenario that cannot be built is reported where it is simulated
+    return tuple(out)
+
+
+def counting_advice(design: ActuatorDesign, *, base_dir: str | Path | None = None) -> dict:
+    """The followable counting advice of a design, as design changes.
+
+    Computed by the same functions as the back-drive check and the scenario
+    rows of :func:`size`, so each change makes its check pass when applied
+    (``change.apply(design)``, then size again).
+
+    Parameters
+    ----------
+    design : ActuatorDesign
+    base_dir : path, optional
+        Folder that relative trace paths are relative to.
+
+    Returns
+    -------
+    dict
+        ``{"backdrive_speed": (DesignChange, ...), "scenario:<name>": (DesignChange, ...)}``, only for
+        what fails.
+    """
+    train = build_train(design)
+    req = design.requirements
+    req_speed = req.backdrive_speed_mm_per_s if train.output_unit == "mm" else req.backdrive_speed_rpm
+    limits = counting.counting_limits(design)
+    out: dict = {}
+    if req_speed is not None:
+        rpm = motor_rpm_for_output_speed(req_speed, train, "mm/s" if train.output_unit == "mm" else "rpm",
+                                         "requirements.backdrive_speed")
+        per_rpm, speed_unit = output_speed_for_motor_rpm(1.0, train)
+        report = counting.backdrive_report(design, limits, rpm, req_speed, speed_unit, per_rpm, float(train.ratio))
+        if report.changes:
+            out["backdrive_speed"] = report.changes
+    result = size(design, base_dir=base_dir, curves=False)
+    for row, sc in zip(result.scenarios, design.motion):
+        if not row.passed:
+            changes = counting.scenario_changes(design, limits, sc.kind, row.peak_motor_speed_rpm,
+                                                row.overflow_count > 0, _scenario_peak_to_peak(sc, train))
+            if changes:
+                out[f"scenario:{sc.name}"] = changes
+    return out
+
+
+#: Share of the travel a friction belt (given by pitch diameters) can creep or slip (common practice
+#: for flat and V belts: 1-2 %; the larger figure is taken).
+BELT_CREEP_FRACTION = 0.02
+
+
+def _belt_creep(train, stroke: float | None) -> tuple[float, list[str]]:
+    """Output position error from friction-belt creep over the stroke, and the warnings.
+
+    A belt given by pitch diameters is taken to be a friction belt: it slips, so the count at the
+    motor stops following the output. The creep over the whole stroke joins the accuracy figure.
+    """
+    slipping = [i for i, s in enumerate(train.stages) if isinstance(s, gears.BeltStage) and s.teeth_driver is None]
+    if not slipping:
+        return 0.0, []
+    where = ", ".join(f"gear_train[{i}]" for i in slipping)
+    creep = BELT_CREEP_FRACTION * float(stroke) if stroke is not None else 0.0
+    text = (f"{where}: a belt given by pitch diameters is taken as a friction belt, which creeps and slips "
+            f"(about {BELT_CREEP_FRACTION * 100:g} % of the travel, common practice): the count at the motor "
+            "no longer follows the output. Use a toothed belt (give teeth) for position keeping, or re-home "
+            "often; ")
+    text += (f"the output accuracy includes {creep:.3g} {train.output_unit} of creep over the stroke."
+             if stroke is not None else "give the stroke to include the creep in the output accuracy.")
+    return creep, [text]
+
+
+def _logged_motion(sc: MotionScenario, train, base_dir, start_deg: float) -> tuple[MotionProfile, float, float]:
+    """A ``segments`` or ``burst_replay`` scenario: (profile, duration_s, peak motor rpm)."""
+    from .motion import load_bursts_csv, load_segments_csv
+
+    path = Path(sc.trace)
+    if not path.is_absolute() and base_dir is not None:
+        path = Path(base_dir) / path
+    load = load_segments_csv if sc.kind == "segments" else load_bursts_csv
+    prof = load(path, train=train, at_output=(sc.at == "output"), start_angle_deg=start_deg)
+    inner = prof
+    while not hasattr(inner, "peak_speed_rpm"):   # AtOutput, or AtOutput plus a resting offset
+        inner = inner.profile if hasattr(inner, "profile") else inner.profiles[0]
+    peak = abs(inner.peak_speed_rpm)
+    if inner is not prof:
+        from .motion import output_travel_to_motor_deg
+
+        # The inner profile turns in output units (deg or mm) at "rpm" = output units per 6 s;
+        # motor degrees per output unit map both to the motor.
+        peak *= abs(float(output_travel_to_motor_deg(1.0, train)))
+    _, ends = prof.motion_intervals()
+    end = float(ends[-1]) if ends.size else 0.0
+    return prof, end + 0.5, peak

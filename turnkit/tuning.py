@@ -194,7 +194,8 @@ def tunables_for(design: ActuatorDesign) -> tuple[Tunable, ...]:
     of a final screw or rack, the poll period (and the fast period and hold
     time of an adaptive schedule), wake and settle time, the total sleep and
     wake currents (each scaled across the consumers in proportion), the
-    battery cell and cell count, and the required back-drive speed.
+    latch switch-point tolerance, the battery cell and cell count, the
+    required back-drive speed and the required counting margin.
     """
     out: list[Tunable] = []
     for i, stage in enumerate(design.gear_train):
@@ -255,6 +256,14 @@ def tunables_for(design: ActuatorDesign) -> tuple[Tunable, ...]:
                        lambda d: d.schedule.settle_time_us, _section_setter("schedule", "settle_time_us"),
                        group="schedule"))
 
+    # Latch tolerance: it sets the narrowest quadrant and so every counting bound.
+    lt = design.latches
+    hyst = 0.5 * lt.hysteresis_deg if lt.powered == "during_polls" else 0.0
+    out.append(Tunable("latches.switch_point_tolerance_deg", "Latch switch-point tolerance (deg)", "deg", 0.0,
+                       max(min(30.0, 44.0 - hyst), lt.switch_point_tolerance_deg), False, 0.1,
+                       lambda d: d.latches.switch_point_tolerance_deg,
+                       _section_setter("latches", "switch_point_tolerance_deg"), group="latches"))
+
     if design.power.consumers:
         g, st = _scale_currents(("asleep",))
         now = g(design)
@@ -289,6 +298,11 @@ def tunables_for(design: ActuatorDesign) -> tuple[Tunable, ...]:
             out.append(Tunable(f"requirements.{attr}", label, unit_, lo, hi, True, value / 1000.0,
                                (lambda d, a=attr: getattr(d.requirements, a)),
                                _section_setter("requirements", attr), group="requirements"))
+    if r.backdrive_speed_mm_per_s is not None or r.backdrive_speed_rpm is not None:
+        out.append(Tunable("requirements.counting_margin", "Required counting margin (share of the bound unused)",
+                           "", 0.0, max(0.8, r.counting_margin), False, 0.01,
+                           lambda d: d.requirements.counting_margin,
+                           _section_setter("requirements", "counting_margin"), group="requirements"))
     out.extend(_magnet_and_temperature_tunables(design))
     return tuple(out)
 
