@@ -101,6 +101,9 @@ GENERAL_CAUTIONS: tuple[str, ...] = (
     "These figures are design estimates, not a safety case. Where the position feeds a safety "
     "function, assess it under the applicable functional-safety standard (IEC 61508, ISO 13849-1, "
     "IEC 62061, ISO 26262 or your sector's) and rely on licensed practice where the law asks for it.",
+    "A hand wheel or crank on the motor shaft spins whenever the motor runs and can strike or catch "
+    "the hand on it: declutch it from the motor, or fit an interlock that keeps the motor off while it "
+    "is engaged (common practice).",
 )
 
 _BACKDRIVE_CAUTION = (
@@ -766,7 +769,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     margin = latch_mod.half_turn_margin(build_latches(design), fine_error_deg=motor_peak)
     add("half_turn_margin_deg", "Half-turn margin of the quadrant latches", margin.margin_deg, "deg", "sensor",
         note="45 deg less latch tolerance, half the hysteresis, misalignment and sensor error")
-    checks.append(_check("half_turn_margin", "Latch tolerances and sensor error leave the half-turn decision safe",
+    checks.append(_check("half_turn_margin", "Latch tolerances and sensor error leave the half-turn decision correct",
                          margin.consumed_deg, margin.available_deg, "deg", "<=",
                          advice="tighten the latch switch-point tolerance, the hysteresis or the magnet alignment"))
     if not margin.ok:
@@ -874,12 +877,14 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
             try:
                 need_cap = float(batt.capacity_needed_mAh(budget.average_current_uA, req.battery_life_years, pack,
                                                           temperature_C=temperature_C, usable_fraction=usable))
-                advice = f"a battery of at least {need_cap:.4g} mAh, or a lower average current"
+                advice = (f"a battery of at least {need_cap:.4g} mAh at the present poll period of "
+                          f"{schedule.poll_period_s * 1e3:.4g} ms, or a lower average current")
                 if req_speed is not None and max_period_s > schedule.poll_period_s * 1.01:
                     advice += (f"; polling only as often as the back-drive speed needs (every "
                                f"{max_period_s * 1e3:.4g} ms) also saves charge")
-                add("capacity_needed_mAh", "Capacity needed for the required life", need_cap, "mAh", "battery",
-                    equation="capacity_for_life")
+                add("capacity_needed_mAh", "Capacity needed for the required life at the present poll period",
+                    need_cap, "mAh", "battery", equation="capacity_for_life",
+                    note=f"polling every {schedule.poll_period_s * 1e3:.4g} ms while asleep")
                 # Largest sleep current that still lasts the life: solve the life equation for the
                 # average current, then give the whole change to the time spent asleep.
                 asleep_share = budget.state_fractions()["asleep"]

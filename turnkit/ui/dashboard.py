@@ -35,11 +35,11 @@ import ipywidgets as widgets
 from jupyter_bokeh import BokehModel
 
 from ..errors import TurnkitError
-from ..result import Check, SizingResult, Value
+from ..result import Check, SizingResult, Value, micro_sign
 from . import plots
 from .plots import format_number
 
-__all__ = ["Dashboard", "PLOT_ORDER", "READOUTS"]
+__all__ = ["Dashboard", "HEADER_CAUTION", "PLOT_ORDER", "READOUTS"]
 
 #: Curve keys in the order the plots are laid out; other curves follow.
 PLOT_ORDER: tuple[str, ...] = (
@@ -76,6 +76,12 @@ READOUTS: tuple[Readout, ...] = (
     Readout("life", "battery life", ("battery_life_years",)),
 )
 
+#: The one-line caution under the dashboard's title (the full cautions are in the requirement panel).
+HEADER_CAUTION = (
+    "⚠ Design estimates, not a safety case: powered actuators pinch and crush, and a lost count moves "
+    "them to the wrong place. Follow local codes, functional-safety standards and licensed practice."
+)
+
 #: Width of one step of a logarithmic slider, in decades (about 1.2 %).
 LOG_STEP_DECADES = 0.005
 
@@ -84,6 +90,7 @@ _CSS = """
 .tk-app { font-family: 'Source Sans 3', 'Segoe UI', 'Helvetica Neue', Arial, sans-serif; color: #1f2a33; }
 .tk-app .tk-header { display: flex; align-items: baseline; gap: 14px; margin: 2px 0 6px 0; }
 .tk-app .tk-title { font-size: 18px; font-weight: 600; }
+.tk-app .tk-header-caution { font-size: 12.5px; color: #6b2d00; margin: 0 0 6px 0; }
 .tk-app .tk-badge { border-radius: 4px; padding: 1px 8px; font-size: 12px; font-weight: 700;
   letter-spacing: .04em; border: 1.5px solid; }
 .tk-app .tk-badge.tk-pass { color: #005a8c; border-color: #0072B2; background: #eaf4fa; }
@@ -103,7 +110,8 @@ _CSS = """
   padding: 3px 6px; }
 .tk-app table.tk-table td { border-bottom: 1px solid #e3e8ec; padding: 3px 6px; vertical-align: top;
   font-variant-numeric: tabular-nums; }
-.tk-app tr.tk-fail td { background: #fdf3ec; }
+.tk-app table.tk-table td.tk-num { white-space: nowrap; }
+.tk-app tr.tk-fail td { background: #fdf0e8; }
 .tk-app .tk-verdict { font-weight: 700; }
 .tk-app tr.tk-pass .tk-verdict { color: #005a8c; }
 .tk-app tr.tk-fail .tk-verdict { color: #8a3600; }
@@ -482,13 +490,14 @@ class Dashboard:
         failed = len(r.failed_checks) + sum(1 for s in r.scenarios if not s.passed)
         total = len(r.checks) + len(r.scenarios)
         if failed:
-            badge = f"<span id='tk-status-text' class='tk-badge tk-fail'>FAIL · {failed} of {total}</span>"
+            badge = f"<span id='tk-status-text' class='tk-badge tk-fail'>{failed} of {total} fail</span>"
         else:
-            badge = f"<span id='tk-status-text' class='tk-badge tk-pass'>PASS · {total} of {total}</span>"
+            badge = f"<span id='tk-status-text' class='tk-badge tk-pass'>{total} of {total} pass</span>"
         source = f" · <code>{html.escape(self.path.name)}</code>" if self.path is not None else ""
         self._header.value = (f"<div class='tk-header'><span class='tk-title'>{html.escape(r.design_name)}"
                               f"</span>{badge}<span class='tk-card-label'>turnkit {html.escape(r.turnkit_version)}"
-                              f"{source}</span></div>")
+                              f"{source}</span></div>"
+                              f"<div class='tk-header-caution' id='tk-header-caution'>{html.escape(HEADER_CAUTION)}</div>")
         for readout in READOUTS:
             value = _first_value(r, readout.keys)
             box = self.readouts[readout.name]
@@ -608,8 +617,8 @@ def _default_tunables(design) -> tuple[Any, ...]:
 def _label(t) -> str:
     """The control's label with its unit, once (tunable labels may already carry it)."""
     if not t.unit or f"({t.unit})" in t.label:
-        return t.label
-    return f"{t.label} ({t.unit})"
+        return micro_sign(t.label)
+    return micro_sign(f"{t.label} ({t.unit})")
 
 
 def _choice_label(key: str, value: Any) -> str:
@@ -654,14 +663,20 @@ def _first_value(result: SizingResult, keys: Sequence[str]) -> Value | None:
     return None
 
 
+def _count_text(n: float) -> str:
+    """A whole count with thin groups of three digits ("1 577 880 000")."""
+    return f"{int(n):,}".replace(",", "\u2009")
+
+
 def _check_row(c: Check) -> str:
     verdict = "PASS" if c.passed else "FAIL"
     cls = "tk-pass" if c.passed else "tk-fail"
+    # Numbers and their units stay on one line; only the label and the advice wrap.
     return (f"<tr class='{cls}' data-key='{html.escape(c.key)}'><td>{html.escape(c.label)}</td>"
-            f"<td>{html.escape(format_number(c.value, c.unit))}</td>"
-            f"<td>{html.escape(c.comparison)} {html.escape(format_number(c.target, c.unit))}</td>"
-            f"<td>{html.escape(_percent(c.margin))}</td><td class='tk-verdict'>{verdict}</td>"
-            f"<td class='tk-advice'>{html.escape(c.advice)}</td></tr>")
+            f"<td class='tk-num'>{html.escape(format_number(c.value, c.unit))}</td>"
+            f"<td class='tk-num'>{html.escape(c.comparison)} {html.escape(format_number(c.target, c.unit))}</td>"
+            f"<td class='tk-num'>{html.escape(_percent(c.margin))}</td><td class='tk-verdict'>{verdict}</td>"
+            f"<td class='tk-advice'>{html.escape(micro_sign(c.advice))}</td></tr>")
 
 
 def requirements_html(result: SizingResult) -> str:
@@ -696,15 +711,16 @@ def requirements_html(result: SizingResult) -> str:
             parts.append(
                 f"<tr class='{cls}' data-key='{html.escape(s.name)}'><td>{html.escape(s.name)}"
                 f"{' <span class=tk-advice>(' + html.escape(s.note) + ')</span>' if s.note else ''}</td>"
-                f"<td>{html.escape(format_number(s.peak_motor_speed_rpm, 'rpm'))}</td><td>{int(s.polls)}</td>"
-                f"<td>{int(s.final_count_error_qt)} quarter-turns</td><td>{int(s.ambiguous_count)}</td>"
+                f"<td class='tk-num'>{html.escape(format_number(s.peak_motor_speed_rpm, 'rpm'))}</td>"
+                f"<td class='tk-num'>{_count_text(s.polls)}</td>"
+                f"<td class='tk-num'>{int(s.final_count_error_qt)} quarter-turns</td><td>{int(s.ambiguous_count)}</td>"
                 f"<td>{int(s.silent_error_count)}</td><td>{int(s.overflow_count)}</td>"
-                f"<td>{html.escape(format_number(s.max_output_error, s.output_unit))}</td>"
+                f"<td class='tk-num'>{html.escape(format_number(s.max_output_error, s.output_unit))}</td>"
                 f"<td class='tk-verdict'>{verdict}</td></tr>")
         parts.append("</tbody></table>")
     if result.warnings:
         parts.append("<div class='tk-section-title'>Warnings</div><ul class='tk-notes tk-warnings'>")
-        parts.extend(f"<li>{html.escape(w)}</li>" for w in result.warnings)
+        parts.extend(f"<li>{html.escape(micro_sign(w))}</li>" for w in result.warnings)
         parts.append("</ul>")
     if result.cautions:
         parts.append("<div class='tk-section-title'>Cautions</div><ul class='tk-notes tk-caution'>")
@@ -723,5 +739,6 @@ def values_html(result: SizingResult) -> str:
         rows.append(f"<tr><th colspan='3'>{html.escape(group)}</th></tr>")
         for v in values:
             rows.append(f"<tr data-key='{html.escape(v.key)}'><td>{html.escape(v.label)}</td>"
-                        f"<td>{html.escape(v.formatted())}</td><td class='tk-advice'>{html.escape(v.note)}</td></tr>")
+                        f"<td class='tk-num'>{html.escape(v.formatted())}</td>"
+                        f"<td class='tk-advice'>{html.escape(micro_sign(v.note))}</td></tr>")
     return f"<table class='tk-table' id='tk-values-table'><tbody>{''.join(rows)}</tbody></table>"

@@ -28,7 +28,7 @@ from bokeh.layouts import column
 from bokeh.models import ColumnDataSource, Div, HoverTool, Legend, LegendItem, PrintfTickFormatter
 from bokeh.plotting import figure
 
-from ..result import Curve, Value
+from ..result import Curve, Value, micro_sign
 
 __all__ = [
     "OKABE_ITO",
@@ -73,7 +73,7 @@ def format_number(value: float, unit: str = "") -> str:
 
 def axis_title(label: str, unit: str) -> str:
     """Axis title with its unit in brackets (``"poll period [ms]"``)."""
-    return f"{label} [{unit}]" if unit else label
+    return f"{label} [{micro_sign(unit)}]" if unit else label
 
 
 @dataclass(eq=False)
@@ -207,7 +207,7 @@ def caption_text(curve: Curve) -> str:
             parts.append(f"<span class='tk-cap-limit'>┆ {html.escape(v.name)}: "
                          f"{html.escape(format_number(v.x, curve.x_unit))}</span>")
     if curve.note:
-        parts.append(f"<span class='tk-cap-note'>{html.escape(curve.note)}</span>")
+        parts.append(f"<span class='tk-cap-note'>{html.escape(micro_sign(curve.note))}</span>")
     return " &nbsp;·&nbsp; ".join(parts)
 
 
