@@ -120,3 +120,18 @@ def test_capacity_targets_name_their_poll_period(crane):
     assert relax and all("polling every" in w for w in relax)
     advice = crane.result.check("battery_life").advice
     assert "present poll period of" in advice
+
+
+def test_new_plot_data_make_the_legend_repaint_its_swatches():
+    # In the browser the legend's swatches stayed blank after new data moved the axes (changing the
+    # battery cell); a change to the legend model makes BokehJS re-render them. Unchanged data send nothing.
+    from turnkit.ui import plots
+
+    dash = Dashboard(ROOT / "demo" / "irrigation-gate-valve.toml")
+    legend = dash.figures["life_vs_poll_period"].legend
+    events = []
+    legend.on_change("tags", lambda attr, old, new: events.append(new))
+    dash.set(**{"power.sleep_current_uA": 3.0})
+    assert len(events) == 1
+    plots.update(dash.figures["life_vs_poll_period"], dash.result.curve("life_vs_poll_period"))
+    assert len(events) == 1

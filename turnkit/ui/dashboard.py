@@ -100,6 +100,17 @@ _CSS = """
 .tk-app .tk-card-label { font-size: 11px; color: #4a5864; text-transform: lowercase; }
 .tk-app .tk-card-value { font-size: 17px; font-weight: 600; font-variant-numeric: tabular-nums; }
 .tk-app .tk-plots, .tk-app .tk-readouts, .tk-app .tk-body { gap: 8px; }
+/* Side panel: readouts and controls stay in view while the plots scroll past. Sticky needs every
+   box between it and the notebook's scroller to let it overflow, JupyterLab's output area included. */
+.jp-OutputArea-output:has(.tk-app), .jp-OutputArea-child:has(.tk-app), .jp-Cell-outputArea:has(.tk-app),
+.tk-app, .tk-app .tk-body { overflow: visible !important; }
+.tk-app .tk-side { position: sticky; top: 0; z-index: 3; align-self: flex-start; background: #ffffff;
+  max-height: calc(100vh - 130px); display: flex; flex-direction: column; gap: 6px; }
+.tk-app .tk-side .tk-readouts { flex: 0 0 auto; gap: 4px; }
+.tk-app .tk-side .tk-card { min-width: 100px; flex: 1 1 100px; padding: 2px 8px; }
+.tk-app .tk-side .tk-card-value { font-size: 15px; }
+.tk-app .tk-side .tk-controls { flex: 1 1 auto; min-height: 120px; overflow-y: auto !important;
+  overflow-x: hidden !important; }
 .tk-app .tk-controls { border-right: 1px solid #e3e8ec; padding-right: 8px; }
 .tk-app .tk-control-label { font-size: 12.5px; color: #33414d; margin: 2px 0 0 2px; line-height: 1.2; }
 .tk-app .tk-controls .widget-html { margin-bottom: 0; }
@@ -292,7 +303,7 @@ class Dashboard:
             self.files,
             self.message,
         ]
-        controls_box = widgets.VBox(control_rows, layout=widgets.Layout(width="340px", flex="0 0 340px"))
+        controls_box = widgets.VBox(control_rows, layout=widgets.Layout(width="350px"))
         controls_box.add_class("tk-controls")
         plots_box = widgets.Box(
             list(self.plot_widgets.values()),
@@ -302,9 +313,14 @@ class Dashboard:
         readouts_box = widgets.HBox(list(self.readouts.values()),
                                     layout=widgets.Layout(flex_flow="row wrap"))
         readouts_box.add_class("tk-readouts")
-        body = widgets.HBox([controls_box, plots_box],
+        # The headline numbers and the controls share a side panel that stays in view while the
+        # plots beside it scroll (see _CSS: sticky, with the controls scrolling inside it).
+        side = widgets.VBox([readouts_box, controls_box], layout=widgets.Layout(width="350px", flex="0 0 350px"))
+        side.add_class("tk-side")
+        body = widgets.HBox([side, plots_box],
                             layout=widgets.Layout(flex_flow="row wrap", align_items="flex-start"))
-        self.widget = widgets.VBox([widgets.HTML(_CSS), self._header, readouts_box, body,
+        body.add_class("tk-body")
+        self.widget = widgets.VBox([widgets.HTML(_CSS), self._header, body,
                                     self.requirements, self._values_box])
         self.widget.add_class("tk-app")
         self._refresh_text()

@@ -319,12 +319,16 @@ def _same_column(a, b) -> bool:
     return list(a) == list(b)
 
 
-def _replace(source: ColumnDataSource, data: dict[str, Any]) -> None:
-    """Replace a source's data unless it is unchanged (an unchanged plot sends nothing to the page)."""
+def _replace(source: ColumnDataSource, data: dict[str, Any]) -> bool:
+    """Replace a source's data unless it is unchanged (an unchanged plot sends nothing to the page).
+
+    Returns True when the data were replaced.
+    """
     old = source.data
     if old.keys() == data.keys() and all(_same_column(old[k], data[k]) for k in data):
-        return
+        return False
     source.data = data
+    return True
 
 
 def update(handles: FigureHandles, curve: Curve) -> None:
@@ -349,24 +353,31 @@ def update(handles: FigureHandles, curve: Curve) -> None:
         doc.hold("combine")
     try:
         seen = set()
+        changed = False
         for s in curve.series:
             seen.add(s.name)
             source = handles.series.get(s.name)
             if source is None:
                 _add_series(handles, s.name, s.style, s.x, s.y)
+                changed = True
             else:
-                _replace(source, {"x": np.asarray(s.x, dtype=float), "y": np.asarray(s.y, dtype=float)})
+                changed |= _replace(source, {"x": np.asarray(s.x, dtype=float), "y": np.asarray(s.y, dtype=float)})
         for name, source in handles.series.items():
             if name not in seen:
-                _replace(source, {"x": np.array([], dtype=float), "y": np.array([], dtype=float)})
-        _replace(handles.markers, _marker_data(curve))
-        _replace(handles.vlines, _vline_data(curve))
-        _replace(handles.bands, _band_data(curve))
+                changed |= _replace(source, {"x": np.array([], dtype=float), "y": np.array([], dtype=float)})
+        changed |= _replace(handles.markers, _marker_data(curve))
+        changed |= _replace(handles.vlines, _vline_data(curve))
+        changed |= _replace(handles.bands, _band_data(curve))
         caption = caption_text(curve)
         if handles.caption.text != caption:
             handles.caption.text = caption
         if handles.figure.title.text != curve.title:
             handles.figure.title.text = curve.title
+        # BokehJS repaints the legend's swatches (small canvases of their own) only when the legend
+        # itself changes: after new data moved the axes, they were left blank. Any change to the
+        # legend model makes the page re-render it, so count the updates in its tags.
+        if changed and handles.legend is not None:
+            handles.legend.tags = [int(handles.legend.tags[0]) + 1 if handles.legend.tags else 1]
     finally:
         if doc is not None:
             doc.unhold()
