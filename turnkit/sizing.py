@@ -1107,21 +1107,23 @@ def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
                          markers=(Marker("this design", ratio, required_rpm),), log_x=True, log_y=True,
                          note="more reduction: finer resolution, but the motor spins faster under back-drive"))
 
-    # (d) current over one poll cycle
+    # (d) current over one poll cycle, on a log time axis from the wake-up on: a pulse of a few
+    # microseconds and a sleep of many milliseconds both get room, so the pulse's shape shows.
     totals = profile.state_totals_uA()
     t_wake = schedule.wake_time_s + schedule.settle_time_s
     T = schedule.poll_period_s
-    pts_t = np.array([0.0, 0.0, t_wake, t_wake, t_wake + schedule.poll_time_s, t_wake + schedule.poll_time_s, T])
-    pts_i = np.array([totals["asleep"], totals["waking"], totals["waking"], totals["polling"], totals["polling"],
-                      totals["asleep"], totals["asleep"]])
-    cyc_t = np.concatenate([pts_t, pts_t[1:] + T]) * 1e3
-    cyc_i = np.concatenate([pts_i, pts_i[1:]])
+    t_awake = t_wake + schedule.poll_time_s
+    t_first = min(t_wake, schedule.poll_time_s, T - t_awake) / 10.0 if T > t_awake else t_awake / 100.0
+    cyc_t = np.array([t_first, t_wake, t_wake, t_awake, t_awake, T]) * 1e3
+    cyc_i = np.array([totals["waking"], totals["waking"], totals["polling"], totals["polling"], totals["asleep"],
+                      totals["asleep"]])
     avg = float(power.average_current_uA(profile, **sched_kw))
-    out.append(Curve("current_profile", "Current over two poll cycles", "time", "ms", "current", "uA",
+    out.append(Curve("current_profile", "Current over one poll cycle", "time since wake-up", "ms", "current", "uA",
                      (Series("supply current", cyc_t, cyc_i),
                       Series("average", cyc_t[[0, -1]], np.full(2, avg), style="dashed")),
-                     log_y=True,
-                     note=f"duty cycle {awake_s / T * 100:.3g} %, average {avg:.4g} uA"))
+                     log_x=True, log_y=True,
+                     note=f"awake {t_awake * 1e6:.4g} us of every {T * 1e3:.4g} ms: duty cycle "
+                          f"{awake_s / T * 100:.3g} %, average {avg:.4g} uA"))
 
     # (e) sensor angle error over a turn
     out.append(Curve("sensor_error", "Sensor angle error over one motor turn", "motor angle", "deg", "angle error",

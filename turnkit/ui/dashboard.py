@@ -106,7 +106,9 @@ _CSS = """
 .tk-app, .tk-app .tk-body { overflow: visible !important; }
 .tk-app .tk-side { position: sticky; top: 0; z-index: 3; align-self: flex-start; background: #ffffff;
   max-height: calc(100vh - 130px); display: flex; flex-direction: column; gap: 6px; }
-.tk-app .tk-side .tk-readouts { flex: 0 0 auto; gap: 4px; }
+.tk-app .tk-side .tk-readouts, .tk-app .tk-side .tk-actions { flex: 0 0 auto; gap: 4px; }
+.tk-app .tk-side .tk-card .widget-html-content, .tk-app .tk-side .tk-card div { line-height: 1.3; }
+.tk-app .tk-side .tk-card-label { white-space: nowrap; overflow: hidden; text-overflow: ellipsis; }
 .tk-app .tk-side .tk-card { min-width: 100px; flex: 1 1 100px; padding: 2px 8px; }
 .tk-app .tk-side .tk-card-value { font-size: 15px; }
 .tk-app .tk-side .tk-controls { flex: 1 1 auto; min-height: 120px; overflow-y: auto !important;
@@ -297,12 +299,14 @@ class Dashboard:
             label = widgets.HTML(f"<div class='tk-control-label'>{html.escape(_label(self._by_key[key]))}</div>")
             self.labels[key] = label
             control_rows += [label, control]
-        control_rows += [
+        # The buttons and their messages sit above the controls, so they stay in view with them.
+        actions_box = widgets.VBox([
             widgets.HBox([self.save_button, self.export_button, self.reset_button],
-                         layout=widgets.Layout(flex_flow="row wrap", margin="8px 0 0 0")),
+                         layout=widgets.Layout(flex_flow="row wrap", margin="2px 0 0 0")),
             self.files,
             self.message,
-        ]
+        ])
+        actions_box.add_class("tk-actions")
         controls_box = widgets.VBox(control_rows, layout=widgets.Layout(width="350px"))
         controls_box.add_class("tk-controls")
         plots_box = widgets.Box(
@@ -315,7 +319,8 @@ class Dashboard:
         readouts_box.add_class("tk-readouts")
         # The headline numbers and the controls share a side panel that stays in view while the
         # plots beside it scroll (see _CSS: sticky, with the controls scrolling inside it).
-        side = widgets.VBox([readouts_box, controls_box], layout=widgets.Layout(width="350px", flex="0 0 350px"))
+        side = widgets.VBox([readouts_box, actions_box, controls_box],
+                            layout=widgets.Layout(width="350px", flex="0 0 350px"))
         side.add_class("tk-side")
         body = widgets.HBox([side, plots_box],
                             layout=widgets.Layout(flex_flow="row wrap", align_items="flex-start"))
@@ -344,6 +349,7 @@ class Dashboard:
                     * LOG_STEP_DECADES
             slider = widgets.FloatLogSlider(value=value, base=10.0, min=lmin, max=lmax, step=LOG_STEP_DECADES,
                                             readout_format=".3r", **common)
+            slider.add_class("tk-log-slider")
         elif _integer_control(t, lo, hi):
             slider = widgets.IntSlider(value=int(round(value)), min=int(lo), max=int(hi),
                                        step=max(int(t.step), 1), **common)
@@ -591,6 +597,7 @@ class Dashboard:
 
         _load_bokehjs()
         display(self.widget)
+        _describe_log_sliders()
 
     def _ipython_display_(self) -> None:
         self.show()
@@ -608,6 +615,42 @@ def _load_bokehjs() -> None:
     from bokeh.resources import INLINE
 
     output_notebook(INLINE, hide_banner=True)
+
+
+#: Page script: a log slider's handle reports the exponent as its value (aria-valuenow); give screen
+#: readers the real value with its unit (aria-valuetext, from the readout and the label shown above
+#: the control) and the label itself (aria-label). Installed once per page; it follows every change.
+_LOG_SLIDER_TEXT_JS = r"""
+(function () {
+  if (window.turnkitDescribeLogSliders) { window.turnkitDescribeLogSliders(); return; }
+  const labelOf = (box) => { const prev = box.previousElementSibling;
+    const el = prev && prev.querySelector('.tk-control-label'); return el ? el.textContent.trim() : ''; };
+  const unitOf = (label) => { const m = /\(([^()]*)\)\s*$/.exec(label); return m ? ' ' + m[1] : ''; };
+  const describe = () => {
+    document.querySelectorAll('.tk-app .tk-log-slider').forEach((box) => {
+      const handle = box.querySelector('.noUi-handle');
+      const readout = box.querySelector('.widget-readout');
+      if (!handle || !readout) { return; }
+      const label = labelOf(box);
+      const text = readout.textContent.trim() + unitOf(label);
+      if (handle.getAttribute('aria-valuetext') !== text) { handle.setAttribute('aria-valuetext', text); }
+      if (label && handle.getAttribute('aria-label') !== label) { handle.setAttribute('aria-label', label); }
+    });
+  };
+  let queued = false;
+  const soon = () => { if (!queued) { queued = true; requestAnimationFrame(() => { queued = false; describe(); }); } };
+  window.turnkitDescribeLogSliders = describe;
+  new MutationObserver(soon).observe(document.body, {subtree: true, childList: true, characterData: true,
+    attributes: true, attributeFilter: ['aria-valuetext', 'aria-valuenow']});
+  describe();
+})();
+"""
+
+
+def _describe_log_sliders() -> None:
+    from IPython.display import Javascript, display
+
+    display(Javascript(_LOG_SLIDER_TEXT_JS))
 
 
 def _default_size(path: Path | None):

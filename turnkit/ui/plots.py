@@ -59,6 +59,9 @@ SERIES_COLOURS: tuple[str, ...] = tuple(OKABE_ITO[k] for k in (
     "blue", "orange", "bluish_green", "reddish_purple", "sky_blue", "vermillion", "black", "yellow"))
 
 _LINE_DASHES = ("solid", "dotdash", "dotted", "dashdot")
+
+#: Labelled ticks a logarithmic axis aims for.
+LOG_AXIS_TICKS = 4
 _MARKER_COLOUR = OKABE_ITO["black"]
 _LIMIT_COLOUR = OKABE_ITO["vermillion"]
 _FONT = "'Source Sans 3', 'Segoe UI', 'Helvetica Neue', Arial, sans-serif"
@@ -279,6 +282,10 @@ def build_figure(curve: Curve, *, width: int = 430, height: int = 290) -> Figure
         fig.xaxis.formatter = PrintfTickFormatter(format="%g")
     if curve.log_y:
         fig.yaxis.formatter = PrintfTickFormatter(format="%g")
+    # Within less than a decade a log axis labels every step ("30 40 50 60 70"), which crowds a
+    # 430 px plot; a few labels (1, 2, 5 steps) read better.
+    for axis in ((*fig.xaxis,) if curve.log_x else ()) + ((*fig.yaxis,) if curve.log_y else ()):
+        axis.ticker.desired_num_ticks = LOG_AXIS_TICKS
     # Below the plot, so that it never hides a curve.
     legend = Legend(items=[], orientation="horizontal", ncols=3, click_policy="hide",
                     label_text_font=_FONT, label_text_font_size="11px", border_line_color=None,
