@@ -135,3 +135,25 @@ def test_new_plot_data_make_the_legend_repaint_its_swatches():
     assert len(events) == 1
     plots.update(dash.figures["life_vs_poll_period"], dash.result.curve("life_vs_poll_period"))
     assert len(events) == 1
+
+
+def test_log_axes_label_one_two_five_steps_and_linear_axes_keep_bokehs(gate):
+    from bokeh.models import CustomJSTicker
+
+    h = gate.figures["life_vs_poll_period"]
+    assert isinstance(h.figure.xaxis[0].ticker, CustomJSTicker)
+    assert isinstance(h.figure.yaxis[0].ticker, CustomJSTicker)
+    assert h.figure.xgrid[0].ticker is h.figure.xaxis[0].ticker
+    assert "[1, 2, 5]" in h.figure.xaxis[0].ticker.major_code
+    event = gate.figures["backdrive_event"].figure
+    assert not isinstance(event.xaxis[0].ticker, CustomJSTicker)
+
+
+def test_current_profile_shows_the_wake_pulse_on_a_log_time_axis(gate):
+    curve = gate.result.curve("current_profile")
+    assert curve.log_x and curve.x_label == "time since wake-up"
+    x, y = curve.series[0].x, curve.series[0].y
+    # The pulse (first points) spans at least a decade of the axis, the sleep the rest.
+    assert x[0] > 0 and x[1] / x[0] >= 10
+    assert y[0] > 100 * y[-1]
+    assert "awake" in curve.note and "µs" in micro_sign(curve.note)

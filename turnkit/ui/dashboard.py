@@ -107,10 +107,12 @@ _CSS = """
 .tk-app .tk-side { position: sticky; top: 0; z-index: 3; align-self: flex-start; background: #ffffff;
   max-height: calc(100vh - 130px); display: flex; flex-direction: column; gap: 6px; }
 .tk-app .tk-side .tk-readouts, .tk-app .tk-side .tk-actions { flex: 0 0 auto; gap: 4px; }
+.tk-app .tk-actions .widget-html, .tk-app .tk-actions .widget-html-content { height: auto; min-height: 0;
+  line-height: 1.3; }
 .tk-app .tk-side .tk-card .widget-html-content, .tk-app .tk-side .tk-card div { line-height: 1.3; }
 .tk-app .tk-side .tk-card-label { white-space: nowrap; overflow: hidden; text-overflow: ellipsis; }
-.tk-app .tk-side .tk-card { min-width: 100px; flex: 1 1 100px; padding: 2px 8px; }
-.tk-app .tk-side .tk-card-value { font-size: 15px; }
+.tk-app .tk-side .tk-card { min-width: 0; flex: 1 1 150px; padding: 2px 8px; margin: 0; }
+.tk-app .tk-side .tk-card-value { font-size: 15px; white-space: nowrap; }
 .tk-app .tk-side .tk-controls { flex: 1 1 auto; min-height: 120px; overflow-y: auto !important;
   overflow-x: hidden !important; }
 .tk-app .tk-controls { border-right: 1px solid #e3e8ec; padding-right: 8px; }

@@ -25,7 +25,7 @@ from typing import Any
 
 import numpy as np
 from bokeh.layouts import column
-from bokeh.models import ColumnDataSource, Div, HoverTool, Legend, LegendItem, PrintfTickFormatter
+from bokeh.models import ColumnDataSource, CustomJSTicker, Div, HoverTool, Legend, LegendItem, PrintfTickFormatter
 from bokeh.plotting import figure
 
 from ..result import Curve, Value, micro_sign
@@ -60,8 +60,33 @@ SERIES_COLOURS: tuple[str, ...] = tuple(OKABE_ITO[k] for k in (
 
 _LINE_DASHES = ("solid", "dotdash", "dotted", "dashdot")
 
-#: Labelled ticks a logarithmic axis aims for.
-LOG_AXIS_TICKS = 4
+#: Tick code for logarithmic axes: the sparsest of the mantissa sets that gives at least three
+#: labels in view (1; 1-2-5; 1-2-3-5-7; every digit); over many decades every k-th decade only.
+_LOG_TICKS_JS = """
+const lo = Math.min(cb_data.start, cb_data.end), hi = Math.max(cb_data.start, cb_data.end);
+if (!(lo > 0) || !(hi > lo) || !isFinite(hi)) { return []; }
+const sets = [[1], [1, 2, 5], [1, 2, 3, 5, 7], [1, 1.5, 2, 3, 4, 5, 6, 7, 8, 9]];
+let ticks = [];
+for (const set of sets) {
+  ticks = [];
+  for (let e = Math.floor(Math.log10(lo)) - 1; e <= Math.ceil(Math.log10(hi)); e++) {
+    for (const m of set) {
+      const t = Number((m * Math.pow(10, e)).toPrecision(12));
+      if (t >= lo && t <= hi) { ticks.push(t); }
+    }
+  }
+  if (ticks.length >= 3) { break; }
+}
+if (ticks.length > 7) {
+  const k = Math.ceil(ticks.length / 6);
+  ticks = ticks.filter((t, i) => i % k === 0);
+}
+return ticks;
+"""
+
+
+def _log_ticker() -> CustomJSTicker:
+    return CustomJSTicker(major_code=_LOG_TICKS_JS, minor_code="return []")
 _MARKER_COLOUR = OKABE_ITO["black"]
 _LIMIT_COLOUR = OKABE_ITO["vermillion"]
 _FONT = "'Source Sans 3', 'Segoe UI', 'Helvetica Neue', Arial, sans-serif"
@@ -282,10 +307,12 @@ def build_figure(curve: Curve, *, width: int = 430, height: int = 290) -> Figure
         fig.xaxis.formatter = PrintfTickFormatter(format="%g")
     if curve.log_y:
         fig.yaxis.formatter = PrintfTickFormatter(format="%g")
-    # Within less than a decade a log axis labels every step ("30 40 50 60 70"), which crowds a
-    # 430 px plot; a few labels (1, 2, 5 steps) read better.
-    for axis in ((*fig.xaxis,) if curve.log_x else ()) + ((*fig.yaxis,) if curve.log_y else ()):
-        axis.ticker.desired_num_ticks = LOG_AXIS_TICKS
+    # Bokeh labels a log axis spanning less than two decades with linear steps ("30 40 50 60 70"),
+    # crowded at the top; label 1-2-5 (or 1-2-3-5-7) steps instead, evenly spaced on the log scale.
+    if curve.log_x:
+        fig.xaxis.ticker = fig.xgrid.ticker = _log_ticker()
+    if curve.log_y:
+        fig.yaxis.ticker = fig.ygrid.ticker = _log_ticker()
     # Below the plot, so that it never hides a curve.
     legend = Legend(items=[], orientation="horizontal", ncols=3, click_policy="hide",
                     label_text_font=_FONT, label_text_font_size="11px", border_line_color=None,
