@@ -1,7 +1,9 @@
 """The dashboard in a real browser: JupyterLab in headless Chromium, driven by Playwright.
 
 One JupyterLab server and one Chromium per session. The test opens a demo
-notebook, runs all cells, moves the poll-period slider and checks that the
+notebook, runs all cells, checks the header's one-line caution and the
+badge's wording ("9 of 9 pass"), moves the poll-period slider, checks that
+its handle tells screen readers the value with its unit, and checks that the
 battery-life readout and the marker on the life-versus-poll-period plot
 changed to the values the sizing engine gives for the new period, that
 every plot was painted, and that no widget error appeared. Screenshots go

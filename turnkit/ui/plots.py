@@ -61,11 +61,11 @@ SERIES_COLOURS: tuple[str, ...] = tuple(OKABE_ITO[k] for k in (
 _LINE_DASHES = ("solid", "dotdash", "dotted", "dashdot")
 
 #: Tick code for logarithmic axes: the sparsest of the mantissa sets that gives at least three
-#: labels in view (1; 1-2-5; 1-2-3-5-7; every digit); over many decades every k-th decade only.
+#: labels in view (1; 1-3; 1-2-5; 1-2-3-5-7; every digit); over many decades every k-th decade only.
 _LOG_TICKS_JS = """
 const lo = Math.min(cb_data.start, cb_data.end), hi = Math.max(cb_data.start, cb_data.end);
 if (!(lo > 0) || !(hi > lo) || !isFinite(hi)) { return []; }
-const sets = [[1], [1, 2, 5], [1, 2, 3, 5, 7], [1, 1.5, 2, 3, 4, 5, 6, 7, 8, 9]];
+const sets = [[1], [1, 3], [1, 2, 5], [1, 2, 3, 5, 7], [1, 1.5, 2, 3, 4, 5, 6, 7, 8, 9]];
 let ticks = [];
 for (const set of sets) {
   ticks = [];
@@ -308,7 +308,7 @@ def build_figure(curve: Curve, *, width: int = 430, height: int = 290) -> Figure
     if curve.log_y:
         fig.yaxis.formatter = PrintfTickFormatter(format="%g")
     # Bokeh labels a log axis spanning less than two decades with linear steps ("30 40 50 60 70"),
-    # crowded at the top; label 1-2-5 (or 1-2-3-5-7) steps instead, evenly spaced on the log scale.
+    # crowded at the top; label 1-3 or 1-2-5 steps instead, about evenly spaced on the log scale.
     if curve.log_x:
         fig.xaxis.ticker = fig.xgrid.ticker = _log_ticker()
     if curve.log_y:
