@@ -40,8 +40,9 @@ def _quiet_undercut():
 # ---------------------------------------------------------------------------
 
 def test_compound_train_value_matches_handbook_example():
-    # Source: Shigley's Mechanical Engineering Design, ch. 13, Eq. (13-30) and the worked
-    # example of a 30:1 (+-1 %) two-stage train with 16- and 88-tooth gears: e = 30.25.
+    # Source: R. G. Budynas, J. K. Nisbett, Shigley's Mechanical Engineering Design, ch. 13,
+    # Eq. (13-30) and the worked example of a 30:1 (+-1 %) two-stage train with 16- and 88-tooth
+    # gears (edition and equation number from memory): e = 30.25.
     train = GearTrain((ExternalPair(16, 88), ExternalPair(16, 88)))
     assert train.ratio == Fraction(121, 4)
     assert float(train.ratio) == 30.25
@@ -51,13 +52,13 @@ def test_compound_train_value_matches_handbook_example():
 
 
 def test_smallest_pinion_without_interference_matches_handbook():
-    # Source: Shigley, Eq. (13-11): k = 1, phi = 20 deg, m = sqrt(30) -> 15.85 -> 16 teeth;
+    # Source: Shigley, Eq. (13-11) (equation number from memory): k = 1, phi = 20 deg, m = sqrt(30) -> 15.85 -> 16 teeth;
     # mating gear 16*sqrt(30) = 87.64 -> 88.
     n = min_pinion_teeth(math.sqrt(30), 20.0)
     assert n == pytest.approx(15.85, abs=0.005)
     assert math.ceil(n) == 16
     assert 16 * math.sqrt(30) == pytest.approx(87.64, abs=0.005)
-    # Source: Shigley, Eq. (13-13), rack: 2k / sin^2(phi) = 17.1 -> 18 teeth at 20 deg.
+    # Source: Shigley, Eq. (13-13) (from memory), rack: 2k / sin^2(phi) = 17.1 -> 18 teeth at 20 deg.
     assert min_pinion_teeth(math.inf, 20.0) == pytest.approx(17.097, abs=1e-3)
 
 
@@ -190,7 +191,7 @@ def test_synchronous_belt_ratio_from_teeth():
 
 
 def test_worm_self_locking_follows_lead_angle_versus_friction_angle():
-    # Source: Shigley Eq. (13-46) for the worm driving; the pair locks when the wheel-driving
+    # Source: Shigley Eq. (13-46) (from memory) for the worm driving; the pair locks when the wheel-driving
     # efficiency (tan and cot swapped) is <= 0, i.e. tan(lead) <= f / cos(phi_n) (common practice).
     fwd, back = worm_efficiencies(lead_angle_deg=3.0, friction_coefficient=0.08)
     assert back < 0 < fwd < 1
