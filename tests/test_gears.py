@@ -63,7 +63,7 @@ def test_smallest_pinion_without_interference_matches_handbook():
 
 
 def test_exact_reverted_thirty_to_one_train_is_exactly_thirty():
-    # Source: Shigley, worked example "exact 30:1, in-line (reverted)": N2/N3 = 6, N4/N5 = 5,
+    # Source: Shigley, worked example "exact 30:1, in-line (reverted)" (example number from memory): N2/N3 = 6, N4/N5 = 5,
     # N2 + N3 = N4 + N5; smallest set N2 = 108, N3 = 18, N4 = 105, N5 = 21 (centre sums 126).
     train = GearTrain((ExternalPair(18, 108), ExternalPair(21, 105)))
     assert train.ratio == 30
@@ -186,7 +186,7 @@ def test_ball_screw_travel_per_turn_is_the_lead():
 
 
 def test_synchronous_belt_ratio_from_teeth():
-    # Source: common practice (pulley standard ISO 5294, from memory): 20 T -> 60 T gives 3:1.
+    # Source: (common practice; pulley standard ISO 5294, from memory): 20 T -> 60 T gives 3:1.
     assert BeltStage(teeth_driver=20, teeth_driven=60).reduction == 3
 
 
