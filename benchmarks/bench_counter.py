@@ -1,6 +1,6 @@
 """Benchmark of the polled quarter-turn counter simulation.
 
-Run:  /work/venv/bin/python benchmarks/bench_counter.py [--quick]
+Run:  .venv/bin/python benchmarks/bench_counter.py [--quick]
 
 Prints, for 1e5, 1e6 and 1e7 polls of a busy profile (back-drive bursts
 covering most of the timeline, every poll inside a burst decoded):

@@ -1,6 +1,6 @@
 """Benchmark: sweep and Monte Carlo points per second, serial vs 2 worker processes.
 
-Run: /work/venv/bin/python benchmarks/bench_explore.py
+Run: .venv/bin/python benchmarks/bench_explore.py
 
 Two workloads on the demo designs: (a) a 400-point sweep of the irrigation gate
 valve (poll period x first-stage teeth), (b) a 300-sample Monte Carlo of the

@@ -1,6 +1,6 @@
 """Benchmark: life-versus-poll-period curve, vectorised vs a Python loop.
 
-Run: /work/venv/bin/python benchmarks/bench_power.py
+Run: .venv/bin/python benchmarks/bench_power.py
 Reports the median of repeated runs and ratios against baselines measured in
 the same process: (a) a Python loop of scalar budgets + lives, (b) one
 streaming numpy float64 sum over an array of the same length.

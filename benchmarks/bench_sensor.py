@@ -1,6 +1,6 @@
 """Benchmark: AMR angle decode + half-turn combine, vectorised vs a plain Python loop.
 
-Run:  /work/venv/bin/python benchmarks/bench_sensor.py [--samples 1000000] [--loop-samples 100000]
+Run:  .venv/bin/python benchmarks/bench_sensor.py [--samples 1000000] [--loop-samples 100000]
 
 Both paths start from the same raw bridge samples (x, y in mV) and latch
 codes and produce the 0–360° shaft angle. The vectorised path is

@@ -42,7 +42,8 @@ def test_monte_carlo_of_one_uniform_term_is_its_quantile():
 
 
 def test_monte_carlo_of_one_sine_term_follows_the_arcsine_law():
-    # Source: a sine at a uniform random phase has the arcsine distribution: P(|a sin| <= x) = (2/pi) asin(x/a).
+    # Source: a sine at a uniform random phase has the arcsine distribution: P(|a sin| <= x) = (2/pi) asin(x/a)
+    # — the standard random-phase sinusoid example of probability texts (from memory).
     b = _one("sine", 1.0)
     p = math.erf(3 / math.sqrt(2))
     assert b.monte_carlo[0] == pytest.approx(math.sin(p * math.pi / 2), rel=1e-3)

@@ -63,7 +63,8 @@ def test_table_has_the_chemistries_and_sizes_asked_for():
 
 def test_nominal_voltages_follow_the_system_letters():
     # Source: IEC 60086-1 system table (L alkaline 1.5 V, F Li-FeS2 1.5 V,
-    # C Li-MnO2 3.0 V, E Li-SOCl2 3.6 V), seen via a national battery association summary.
+    # C Li-MnO2 3.0 V, E Li-SOCl2 3.6 V), as summarised by a national battery association
+    # (table number from memory).
     expected = {"alkaline": 1.5, "lithium iron disulfide": 1.5,
                 "lithium manganese dioxide": 3.0, "lithium thionyl chloride": 3.6}
     for key in available_cells():
@@ -86,9 +87,7 @@ def test_typical_capacities_sit_inside_published_ranges(key, low, high):
 
 
 def test_self_discharge_sits_inside_published_ranges():
-    # Source: encyclopedia article "Self-discharge", citing Garche et al., Encyclopedia of
-    # Electrochemical Power Sources (2013) (common practice): alkaline 2-3 %/yr,
-    # Li-MnO2 1-2 %/yr, Li-SOCl2 about 1 %/yr or less.
+    # Source: shelf-life figures of makers' data (common practice): alkaline 2-3 %/yr, Li-MnO2 1-2 %/yr, Li-SOCl2 about 1 %/yr or less.
     assert 0.02 <= cell("alkaline_aa").self_discharge_per_year <= 0.03
     assert 0.01 <= cell("li_mno2_2032").self_discharge_per_year <= 0.02
     assert cell("li_socl2_aa").self_discharge_per_year <= 0.01
@@ -198,14 +197,14 @@ def test_unknown_keyword_is_rejected():
 
 
 def test_life_hand_calculation_without_self_discharge():
-    # Hand calculation (arithmetic):
+    # Source: (derived, shown in docs/derivations.md §6):
     # 225 mAh / 10.99 uA = 20 473 h = 2.3355 yr; 225 mAh / 10 uA = 2.5667 yr (8766 h/yr).
     assert life_years(_coin(), 10.99, warn=False) == pytest.approx(2.3355, abs=5e-5)
     assert life_years(_coin(), 10.0, warn=False) == pytest.approx(2.5667, abs=5e-5)
 
 
 def test_life_hand_calculation_with_self_discharge_solved_jointly():
-    # Hand calculation: s = 1 %/yr adds 0.25667 uA
+    # Source: (derived, shown in docs/derivations.md §6): s = 1 %/yr adds 0.25667 uA
     # -> 20 006 h = 2.2822 yr.  L = 225 / (0.01099*8766 + 0.01*225) = 225 / 98.588.
     life = life_years(_coin(0.01), 10.99, warn=False)
     assert life == pytest.approx(225.0 / (0.01099 * 8766.0 + 2.25), rel=1e-12)
@@ -366,8 +365,8 @@ from turnkit.battery import (  # noqa: E402
 
 
 def test_activation_energy_gives_the_doubling_per_ten_degrees_rule():
-    # Source: the common-practice rule "self-discharge doubles per +10 degC near room
-    # temperature"; the default activation energy is derived from it (docs/power.md).
+    # Source: the rule "self-discharge doubles per +10 degC near room temperature" (common practice);
+    # the default activation energy is derived from it (docs/power.md).
     assert self_discharge_factor(30.0) == pytest.approx(2.0, rel=1e-3)
     assert self_discharge_factor(20.0) == pytest.approx(1.0)
 

@@ -26,7 +26,7 @@ GUESS = CounterSettings(32, ambiguous_policy="guess_last_direction")
 
 @pytest.mark.parametrize("period,rpm", [(0.1, 150.0), (0.01, 1500.0), (0.001, 15000.0)])
 def test_guaranteed_speed_reference_values(period, rpm):
-    # Source: reference-checks §5 guaranteed tracking n_max = 15 / T_poll (derived):
+    # Source: (derived, shown in docs/counter.md §6) guaranteed tracking n_max = 15 / T_poll:
     # 100 ms -> 150 rpm; 10 ms -> 1500 rpm; 1 ms -> 15 000 rpm.
     assert max_trackable_speed_rpm(period) == pytest.approx(rpm, rel=1e-12)
     assert silent_error_speed_rpm(period) == pytest.approx(2 * rpm, rel=1e-12)
@@ -34,7 +34,7 @@ def test_guaranteed_speed_reference_values(period, rpm):
 
 
 def test_output_side_reference_value():
-    # Source: reference-checks §5: output side ÷ G (G 50, 10 ms -> 30 rpm).
+    # Source: (derived, shown in docs/counter.md §6): output side ÷ G (G 50, 10 ms -> 30 rpm).
     assert max_trackable_output_speed(0.01, G50) == pytest.approx(30.0)
     assert max_poll_period_at_output_s(30.0, G50) == pytest.approx(0.01)
     screw = SimpleNamespace(travel_per_motor_turn=Fraction(1, 20), output_unit="mm", direction=-1)

@@ -21,8 +21,9 @@ from turnkit.sensor import BridgeSensor
 
 
 def test_heydemann_round_trip_reference_example():
-    # Source: reference-checks.md §2 "Heydemann fit" round trip (Heydemann, Appl. Opt. 20(19)
-    # 1981): x = 0.02 + cos φ, y = −0.01 + 1.02·sin(φ − 1°) → r = 1/1.02 = 0.98039216,
+    # Source: P. L. M. Heydemann, "Determination and correction of quadrature fringe measurement
+    # errors in interferometers", Appl. Opt. 20(19) (1981) 3382-3384 (pages from memory); round
+    # trip: x = 0.02 + cos φ, y = −0.01 + 1.02·sin(φ − 1°) → r = 1/1.02 = 0.98039216,
     # α = 1.0°, p = 0.02, q = −0.01, residual < 1e-12°.
     phi = np.linspace(0.0, 2 * np.pi, 360, endpoint=False)
     x = 0.02 + np.cos(phi)
@@ -40,7 +41,7 @@ def test_heydemann_round_trip_reference_example():
 
 
 def test_fit_agrees_with_independent_nonlinear_least_squares():
-    # Source: scipy.optimize.least_squares as a second opinion (reference-checks.md §7):
+    # Source: scipy.optimize.least_squares as a second opinion:
     # the sample model x = p + a cos φ, y = q + b sin(φ + δ) fitted directly with the
     # reference angles known, not through the conic.
     opt = pytest.importorskip("scipy.optimize")
@@ -120,7 +121,7 @@ def test_residual_reports_harmonic_the_fit_cannot_remove():
     s = BridgeSensor(amplitude_mV=50.0, offset_x_mV=1.0, harmonic3=0.01)
     theta = np.linspace(0.0, 180.0, 720, endpoint=False)
     fit = fit_sweep(*s.signals(theta), angle_deg=theta)
-    # Source: derived (see test_angle_error): a 3rd harmonic leaves arcsin(h3)/2 mech.
+    # Source: (derived, shown in docs/derivations.md §3): a 3rd harmonic leaves arcsin(h3)/2 mech.
     assert fit.angle_residual_peak_deg == pytest.approx(math.degrees(math.asin(0.01)) / 2, rel=0.02)
     assert fit.angle_residual_rms_deg < fit.angle_residual_peak_deg
 

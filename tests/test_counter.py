@@ -62,13 +62,14 @@ def test_gray_sequence_changes_one_bit_per_quarter_turn():
 
 
 def test_gray_to_index_matches_reference_table():
-    # Source: reference-checks §5 "Gray -> index": 00->0, 01->1, 11->2, 10->3 (b1 = g1, b0 = g1 xor g0).
+    # Source: (derived, shown in docs/derivations.md §1) from the code of F. Gray, US patent 2,632,058 (1953):
+    # 00->0, 01->1, 11->2, 10->3 (b1 = g1, b0 = g1 xor g0).
     assert gray_to_index([0b00, 0b01, 0b11, 0b10]).tolist() == [0, 1, 2, 3]
     assert index_to_gray(np.arange(-4, 8)).tolist() == [0, 1, 3, 2] * 3
 
 
 def test_decode_matches_reference_vectors():
-    # Source: reference-checks §5 step decode (standard quadrature state table, common practice):
+    # Source: quadrature state table (common practice), derived in docs/derivations.md §1:
     # (0->1)=+1, (1->0)=-1, (0->2)=error, (3->0)=+1.
     assert decode_step(0, 1) == 1
     assert decode_step(1, 0) == -1
@@ -85,7 +86,7 @@ def test_decode_agrees_with_oracle_for_every_code_pair():
 
 
 def test_three_quarters_alias_to_one_back_and_four_to_none():
-    # Source: reference-checks §5 aliasing (modulo-4 arithmetic): +3 reads -1, +4 reads 0.
+    # Source: (derived, shown in docs/derivations.md §1) aliasing (modulo-4 arithmetic): +3 reads -1, +4 reads 0.
     decoded, amb, silent = decode_index_changes([3, 4, -3, 2, -2, 1, 0, 6])
     assert decoded.tolist() == [-1, 0, 1, AMBIGUOUS, AMBIGUOUS, 1, 0, AMBIGUOUS]
     assert amb.tolist() == [False, False, False, True, True, False, False, True]
@@ -125,7 +126,8 @@ def test_wrap_is_modular_for_large_steps():
 
 
 def test_counter_range_through_a_fifty_to_one_train():
-    # Source: reference-checks §6 counter range: k 16, G 50 -> 16 384 sensor turns = 327.68 output turns.
+    # Source: (derived, shown in docs/derivations.md §1) counter range: k 16, G 50 -> 16 384 sensor turns = 327.68
+    # output turns.
     train = SimpleNamespace(travel_per_motor_turn=Fraction(360, 50), output_unit="deg", direction=1)
     s = CounterSettings(16, signed=False)
     assert counter_range_output(s, train) / 360 == pytest.approx(327.68, rel=1e-12)

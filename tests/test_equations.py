@@ -94,8 +94,8 @@ def test_unknown_equation_key_suggests_a_close_one():
 
 @pytest.mark.parametrize("period_s, speed_rpm", [(0.1, 150.0), (0.01, 1500.0), (0.001, 15000.0)])
 def test_trackable_speed_matches_published_poll_bound(period_s, speed_rpm):
-    # Source: /work/shared/reference-checks.md §5 "guaranteed tracking": n_max = 15 / T_poll
-    # (derived there from modulo-4 quadrant arithmetic; common practice).
+    # Source: (derived, shown in docs/counter.md §6) guaranteed tracking: n_max = 15 / T_poll
+    # (from modulo-4 quadrant arithmetic).
     assert solve_for("n_max_rpm", T=period_s) == pytest.approx(speed_rpm, rel=REL)
     assert solve_for("T_max", n_motor_rpm=speed_rpm) == pytest.approx(period_s, rel=REL)
     # Half a turn per poll is where three quadrant steps (silent aliasing) become possible.
@@ -103,7 +103,7 @@ def test_trackable_speed_matches_published_poll_bound(period_s, speed_rpm):
 
 
 def test_output_side_trackable_speed_divides_by_the_reduction():
-    # Source: reference-checks.md §5: output side ÷ G (G 50, 10 ms → 30 rpm).
+    # Source: (derived, shown in docs/counter.md §6): output side ÷ G (G 50, 10 ms → 30 rpm).
     # A rotary output in degrees: 360 deg per output turn, so v_out = n_out * 360 / 60.
     p = solve_for("p", l_out=360.0, G=50.0)
     v_out = 30.0 * 360.0 / 60.0
@@ -112,7 +112,7 @@ def test_output_side_trackable_speed_divides_by_the_reduction():
 
 
 def test_output_resolution_of_12_bit_amr_through_50_to_1():
-    # Source: reference-checks.md §6: 12-bit AMR mech LSB 180°/2^12 = 0.0439453125°;
+    # Source: (derived, shown in docs/derivations.md §4): 12-bit AMR mech LSB 180°/2^12 = 0.0439453125°;
     # through G 50 → 0.00087890625° at the output.
     lsb_mech = 180.0 / 2**12
     r_out = solve_for("r_out", r_motor_deg=lsb_mech, l_out=360.0, G=50.0)
@@ -123,7 +123,7 @@ def test_output_resolution_of_12_bit_amr_through_50_to_1():
 
 
 def test_counter_range_16_bits_covers_65535_quarter_turns():
-    # Source: reference-checks.md §6 "counter range": k bits hold 2^k quarter-turn counts;
+    # Source: (derived, shown in docs/derivations.md §1) counter range: k bits hold 2^k quarter-turn counts;
     # k 16, G 50 → 16 384 sensor turns = 327.68 output turns.
     quarters = solve_for("N_q", S=327.68 * 360.0, l_out=360.0, G=50.0)
     assert quarters == pytest.approx(65536.0, rel=REL)
@@ -142,7 +142,7 @@ def test_counter_bits_exact_at_powers_of_two(k):
 
 
 def test_average_current_and_life_match_worked_example():
-    # Source: reference-checks.md §4: 1 uA sleep, 1 mA for 100 us every 10 ms → 10.99 uA;
+    # Source: (derived, shown in docs/derivations.md §6): 1 uA sleep, 1 mA for 100 us every 10 ms → 10.99 uA;
     # 225 mAh / 10.99 uA = 20 473 h = 2.3355 yr (8766 h/yr); with s = 1 %/yr → 2.2822 yr.
     i_avg = solve_for("I_avg", I_sleep=0.001, I_awake=1.0, t_awake=100e-6, T=0.01)
     assert i_avg * 1000 == pytest.approx(10.99, rel=1e-9)  # 1 + (100 us / 10 ms)*(1000 - 1) uA, by hand
@@ -153,7 +153,7 @@ def test_average_current_and_life_match_worked_example():
 
 
 def test_life_agrees_with_pint_unit_arithmetic():
-    # Source: pint 0.25 (reference-checks.md §7): (225 mAh / 10 uA).to('hour') = 22 500 h;
+    # Source: pint 0.25: (225 mAh / 10 uA).to('hour') = 22 500 h;
     # pint's year is the Julian year of 365.25 days, the same 8766 h the model uses.
     from turnkit.units import registry
 
@@ -399,7 +399,7 @@ def test_helpers_carry_cautions():
     assert "wrong place" in LOST_COUNT_CAUTION and "functional-safety" in LOST_COUNT_CAUTION
     cap = min_capacity_for_life_mAh(life_years=1.0, average_current_uA=10.0)
     assert cap.caution == BATTERY_CAUTION and "coin cell" in BATTERY_CAUTION
-    # Source: reference-checks.md §4: 225 mAh / 10 uA = 22 500 h; one 8766 h year → 87.66 mAh.
+    # Source: (derived, shown in docs/derivations.md §6): 225 mAh / 10 uA = 22 500 h; one 8766 h year → 87.66 mAh.
     assert cap.value == pytest.approx(87.66, rel=1e-12)
 
 
@@ -432,7 +432,7 @@ def test_relax_advice_numbers_each_just_resolve_the_conflict():
     assert set(by_name) == {"backdrive_speed", "life", "sleep_current", "wake_charge", "capacity"}
     # Here the wake pulses alone (9.99 uA) exceed the 5.13 uA budget: sleep current cannot help.
     assert not by_name["sleep_current"].possible
-    # Source: reference-checks.md §4: at T = 10 ms the schedule averages 10.99 uA → 2.3355 years
+    # Source: (derived, shown in docs/derivations.md §6): at T = 10 ms the schedule averages 10.99 uA → 2.3355 years
     # from 225 mAh; that is the life to accept.
     assert by_name["life"].needed == pytest.approx(2.3355, abs=5e-5)
     assert advice.recommended is by_name["life"] or advice.recommended == by_name["life"]

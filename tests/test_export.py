@@ -239,7 +239,7 @@ def test_markdown_tables_have_equal_column_counts():
 def test_markdown_neutralises_html_and_table_breaks_in_user_text():
     result = sample_result(name=EVIL, warnings=("a | b\nc",))
     md = to_markdown(result, generated_at=WHEN)
-    # Inside the fenced block of the design as written, text is shown literally and is harmless.
+    # Inside the fenced block of the design as read, text is shown literally and is harmless.
     outside_code = re.sub(r"```toml\n.*?\n```", "", md, flags=re.S)
     assert "<script>" not in outside_code
     assert "&lt;script&gt;" in outside_code

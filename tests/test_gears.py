@@ -40,8 +40,9 @@ def _quiet_undercut():
 # ---------------------------------------------------------------------------
 
 def test_compound_train_value_matches_handbook_example():
-    # Source: Shigley's Mechanical Engineering Design, ch. 13, Eq. (13-30) and the worked
-    # example of a 30:1 (+-1 %) two-stage train with 16- and 88-tooth gears: e = 30.25.
+    # Source: R. G. Budynas, J. K. Nisbett, Shigley's Mechanical Engineering Design, ch. 13,
+    # Eq. (13-30) and the worked example of a 30:1 (+-1 %) two-stage train with 16- and 88-tooth
+    # gears (edition and equation number from memory): e = 30.25.
     train = GearTrain((ExternalPair(16, 88), ExternalPair(16, 88)))
     assert train.ratio == Fraction(121, 4)
     assert float(train.ratio) == 30.25
@@ -51,32 +52,32 @@ def test_compound_train_value_matches_handbook_example():
 
 
 def test_smallest_pinion_without_interference_matches_handbook():
-    # Source: Shigley, Eq. (13-11): k = 1, phi = 20 deg, m = sqrt(30) -> 15.85 -> 16 teeth;
+    # Source: Shigley, Eq. (13-11) (equation number from memory): k = 1, phi = 20 deg, m = sqrt(30) -> 15.85 -> 16 teeth;
     # mating gear 16*sqrt(30) = 87.64 -> 88.
     n = min_pinion_teeth(math.sqrt(30), 20.0)
     assert n == pytest.approx(15.85, abs=0.005)
     assert math.ceil(n) == 16
-    assert 16 * math.sqrt(30) == pytest.approx(87.64, abs=0.005)
-    # Source: Shigley, Eq. (13-13), rack: 2k / sin^2(phi) = 17.1 -> 18 teeth at 20 deg.
+    # Source: Shigley, Eq. (13-13) (from memory), rack: 2k / sin^2(phi) = 17.1 -> 18 teeth at 20 deg.
     assert min_pinion_teeth(math.inf, 20.0) == pytest.approx(17.097, abs=1e-3)
 
 
 def test_exact_reverted_thirty_to_one_train_is_exactly_thirty():
-    # Source: Shigley, worked example "exact 30:1, in-line (reverted)": N2/N3 = 6, N4/N5 = 5,
-    # N2 + N3 = N4 + N5; smallest set N2 = 108, N3 = 18, N4 = 105, N5 = 21 (centre sums 126).
+    # Source: Shigley, worked example "exact 30:1, in-line (reverted)" (example number from memory):
+    # N2/N3 = 6, N4/N5 = 5, N2 + N3 = N4 + N5; smallest set N2 = 108, N3 = 18, N4 = 105, N5 = 21
+    # (centre sums 126, the condition that makes the train in-line).
     train = GearTrain((ExternalPair(18, 108), ExternalPair(21, 105)))
     assert train.ratio == 30
-    assert 108 + 18 == 105 + 21 == 126
 
 
 @pytest.mark.parametrize(
     "sun, ring, held, inp, out, speed_in, speed_out",
     [
-        # Source: published exam-style problem: Zs 20, Zp 40, Zr 100, ring fixed, sun 60 rpm -> carrier 10 rpm.
+        # Source: (derived, shown in docs/derivations.md §5) from the Willis form of the Modelica Standard Library,
+        # Rotational.Components.IdealPlanetary: Zs 20, Zr 100, ring fixed, sun 60 rpm -> carrier 10 rpm.
         (20, 100, "ring", "sun", "carrier", 60, 10),
-        # Source: reference-checks.md (derived): Z 20/30/80, sun 100 rpm -> carrier 20 rpm.
+        # Source: (derived, shown in docs/derivations.md §5): Z 20/30/80, sun 100 rpm -> carrier 20 rpm.
         (20, 80, "ring", "sun", "carrier", 100, 20),
-        # Source: reference-checks.md (derived): sun fixed, ring in: Zs 40, Zr 80, ring 900 -> carrier 600 rpm.
+        # Source: (derived, shown in docs/derivations.md §5): sun fixed, ring in: Zs 40, Zr 80, ring 900 -> carrier 600 rpm.
         (40, 80, "sun", "ring", "carrier", 900, 600),
     ],
 )
@@ -98,15 +99,30 @@ def test_planetary_obeys_the_open_willis_form(held, sun, ring):
     assert (1 + k) * w["carrier"] == w["sun"] + k * w["ring"]
 
 
-def test_planetary_planet_speed_from_carrier_relation():
-    # Source: reference-checks.md (derived): Z 20/30/80, sun 100 rpm -> carrier 20 rpm and
-    # planet absolute speed w_p = w_c - (Zs/Zp)(w_s - w_c) = -33.33 rpm.
+def test_planet_speed_matches_the_worked_example():
+    # Source: (derived, shown in docs/derivations.md §5): Z 20/30/80, ring held, sun 100 rpm ->
+    # carrier 20 rpm, planet w_p = w_c - (Zs/Zp)(w_s - w_c) = -33.33 rpm.
     stage = PlanetaryStage(20, 80, planet_teeth=30)
-    w_s = Fraction(100)
-    w_c = w_s / stage.reduction
-    w_p = w_c - Fraction(20, 30) * (w_s - w_c)
-    assert w_c == 20
-    assert float(w_p) == pytest.approx(-33.333333, abs=1e-5)
+    assert stage.planet_speed(100) == Fraction(-100, 3)
+    assert stage.planet_speed(100.0) == pytest.approx(-33.333333, abs=1e-5)
+
+
+@pytest.mark.parametrize("held", ["sun", "ring", "carrier"])
+@pytest.mark.parametrize("sun, planet", [(20, 30), (12, 18), (17, 22)])
+def test_planet_speed_obeys_the_ring_mesh_too(held, sun, planet):
+    # Source: (derived, shown in docs/derivations.md §5): the planet-ring internal mesh,
+    # w_p - w_c = (Zr/Zp)(w_r - w_c), an equation the library does not use.
+    ring = sun + 2 * planet
+    members = [m for m in ("sun", "ring", "carrier") if m != held]
+    stage = PlanetaryStage(sun, ring, held=held, input_member=members[0], output_member=members[1],
+                           planet_teeth=planet)
+    w = {held: Fraction(0), members[0]: Fraction(1), members[1]: stage.direction / stage.reduction}
+    assert stage.planet_speed() - w["carrier"] == Fraction(ring, planet) * (w["ring"] - w["carrier"])
+
+
+def test_planet_speed_needs_the_planet_teeth():
+    with pytest.raises(DesignValueError, match="planet_teeth"):
+        PlanetaryStage(20, 80).planet_speed(100)
 
 
 def test_worm_ratio_is_wheel_teeth_over_starts():
@@ -139,14 +155,16 @@ def test_power_screw_torques_match_handbook_example():
 
 
 def test_trapezoidal_screw_lead_angle_and_lead():
-    # Source: ISO 2904 basic dimensions (via reference-checks.md): Tr 10x2 -> d2 = 9.0 mm,
-    # lead angle atan(2 / (pi * 9)) = 4.0461 deg; Tr 10x4(P2) -> 2 starts, lead 4 mm, 8.0523 deg.
+    # Source: ISO 2904:2020, metric trapezoidal threads, basic dimensions (d2 = d - 0.5 P, seen in a
+    # secondary summary; table from memory): Tr 10x2 -> d2 = 9.0 mm; lead angle tan(lambda) = l / (pi d_m)
+    # (Shigley, Mechanical Engineering Design, ch. 8 power screws; equation number from memory):
+    # atan(2 / (pi * 9)) = 4.0461 deg; Tr 10x4(P2) -> 2 starts, lead 4 mm, 8.0523 deg.
     single = LeadScrew(pitch_mm=2, mean_diameter_mm=9.0)
     double = LeadScrew(pitch_mm=2, starts=2, mean_diameter_mm=9.0)
     assert single.lead_angle_deg == pytest.approx(4.0461, abs=1e-4)
     assert double.lead_mm == 4
     assert double.lead_angle_deg == pytest.approx(8.0523, abs=1e-4)
-    # Source: common practice: a sliding trapezoidal screw with f = 0.15 locks (friction angle
+    # Source: (common practice): a sliding trapezoidal screw with f = 0.15 locks (friction angle
     # ~8.8 deg incl. the 15 deg flank > 4.05 deg lead angle).
     assert single.backdrive_efficiency <= 0
     assert GearTrain((single,)).self_locking_stages == (0,)
@@ -159,19 +177,20 @@ def test_rack_travel_is_pi_module_teeth():
 
 
 def test_ball_screw_travel_per_turn_is_the_lead():
-    # Source: ISO 3408-1 (via reference-checks.md): lead 5 mm, 200 rev -> 1000 mm.
+    # Source: ISO 3408-1, ball screws, vocabulary and designation (travel per revolution is the
+    # nominal lead; clause from memory): lead 5 mm, 200 rev -> 1000 mm.
     train = GearTrain((LeadScrew(pitch_mm=5, ball=True),))
     assert train.travel(200) == 1000
     assert train.can_backdrive
 
 
 def test_synchronous_belt_ratio_from_teeth():
-    # Source: common practice (pulley standard ISO 5294, from memory): 20 T -> 60 T gives 3:1.
+    # Source: (common practice; pulley standard ISO 5294, from memory): 20 T -> 60 T gives 3:1.
     assert BeltStage(teeth_driver=20, teeth_driven=60).reduction == 3
 
 
 def test_worm_self_locking_follows_lead_angle_versus_friction_angle():
-    # Source: Shigley Eq. (13-46) for the worm driving; the pair locks when the wheel-driving
+    # Source: Shigley Eq. (13-46) (from memory) for the worm driving; the pair locks when the wheel-driving
     # efficiency (tan and cot swapped) is <= 0, i.e. tan(lead) <= f / cos(phi_n) (common practice).
     fwd, back = worm_efficiencies(lead_angle_deg=3.0, friction_coefficient=0.08)
     assert back < 0 < fwd < 1

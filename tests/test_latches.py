@@ -24,15 +24,15 @@ from turnkit.sensor import BridgeSensor, decode_deg
 
 
 def test_gray_cycle_changes_one_bit_per_step():
-    # Source: reference-checks.md §5 "2-bit reflected Gray cycle": forward 00 → 01 → 11 → 10 → 00
-    # (F. Gray, US 2,632,058).
+    # Source: F. Gray, "Pulse code communication", US patent 2,632,058 (1953): 2-bit reflected
+    # cycle, forward 00 → 01 → 11 → 10 → 00.
     assert GRAY_SEQUENCE == (0b00, 0b01, 0b11, 0b10)
     for a, b in zip(GRAY_SEQUENCE, GRAY_SEQUENCE[1:] + GRAY_SEQUENCE[:1]):
         assert bin(a ^ b).count("1") == 1
 
 
 def test_gray_to_quadrant_reference_vectors():
-    # Source: reference-checks.md §5 "Gray → index": b1 = g1, b0 = g1 ⊕ g0; 00→0, 01→1, 11→2, 10→3.
+    # Source: (derived, shown in docs/derivations.md §1): b1 = g1, b0 = g1 ⊕ g0; 00→0, 01→1, 11→2, 10→3.
     np.testing.assert_array_equal(gray_to_quadrant([0b00, 0b01, 0b11, 0b10]), [0, 1, 2, 3])
     np.testing.assert_array_equal(quadrant_to_gray([0, 1, 2, 3]), [0b00, 0b01, 0b11, 0b10])
 
@@ -52,7 +52,8 @@ def test_ideal_latches_report_the_quadrant_of_the_shaft():
 
 
 def test_joining_fine_angle_and_quadrant_reference_example():
-    # Source: reference-checks.md §5 "joining AMR and quadrant": θ = 200°: AMR el 40° → 20°;
+    # Source: (derived, shown in docs/derivations.md §1) joining the fine angle and the quadrant: θ = 200°:
+    # AMR el 40° → 20°;
     # quadrant 2 → 200°.
     assert combine_half_turn_deg(20.0, quadrant_to_gray(2)) == pytest.approx(200.0)
     assert combine_half_turn_deg(20.0, quadrant_to_gray(0)) == pytest.approx(20.0)
@@ -89,6 +90,8 @@ def test_switch_shift_and_misalignment_move_the_edges():
 
 
 def test_margin_adds_up_the_budget():
+    # Source: (derived, shown in docs/sensor.md, Half-turn resolution): margin = 45° − (switch-point
+    # tolerance + hysteresis/2 + |misalignment| + fine-angle error).
     m = half_turn_margin(QuadrantLatches(5.0, 4.0, -1.0), fine_error_deg=0.5)
     assert m.available_deg == 45.0
     assert m.consumed_deg == pytest.approx(5.0 + 2.0 + 1.0 + 0.5)
@@ -287,7 +290,7 @@ def test_code_dtype_and_broadcasting_do_not_change_the_result():
 
 
 def test_float32_full_turn_agrees_with_float64_within_1e_4_deg_over_the_whole_turn():
-    # Source: the float64 path as oracle; float32 rounding of a 0–360° result is at most
+    # Checked against the float64 path (not an outside source); float32 rounding of a 0–360° result is at most
     # half of 2**-15 deg ≈ 1.5e-5 deg per step, well inside 1e-4 deg.
     sensor = BridgeSensor(amplitude_mV=50.0, offset_x_mV=0.5, offset_y_mV=-0.3,
                           gain_mismatch=0.01, phase_error_deg=0.5, noise_rms_mV=0.05,

@@ -44,7 +44,9 @@ def test_on_axis_closed_form_matches_a_numerical_integration(gap):
 
 @pytest.mark.parametrize("point", [(3.5, 0.0), (2.0, 1.0), (0.4, -0.3)])
 def test_off_axis_field_matches_a_numerical_integration(point):
-    # Source: as above; field_mT does the height integral in closed form and the circumference numerically.
+    # Source: E. P. Furlani, Permanent Magnet and Electromechanical Devices, Academic Press, 2001 (surface-charge
+    # model, from memory), integrated here with scipy.integrate.dblquad; field_mT does the height integral in closed
+    # form and the circumference numerically.
     numeric = _surface_charge_field_mT(1000.0, 3.0, 2.5, (*point, -1.5))
     model = m.field_mT(1000.0, 6.0, 2.5, point[0], point[1], 1.5)
     np.testing.assert_allclose(model, numeric, rtol=1e-6, atol=1e-6 * 1000)

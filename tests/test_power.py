@@ -65,7 +65,7 @@ _NODE_SCHEDULE = dict(poll_period_s=0.025, wake_time_s=20e-6, settle_time_s=30e-
 
 
 def test_duty_cycle_example_from_the_reference_table():
-    # Source: reference-checks.md section 4 (arithmetic): 1 uA sleep, 1 mA for
+    # Source: (derived, shown in docs/derivations.md §6): 1 uA sleep, 1 mA for
     # 100 us every 10 ms -> I = 1 + (1000 - 1) * 0.01 = 10.99 uA.
     p = CurrentProfile((Consumer.sleep_and_awake("node", 1.0, 1000.0),), 3.0)
     b = budget_from_schedule(p, poll_period_s=0.01, wake_time_s=0.0, settle_time_s=0.0,

@@ -15,8 +15,8 @@ from turnkit.sensor import BridgeSensor, bridge_amplitude_fraction, decode_deg, 
 
 
 def test_bridge_amplitude_matches_worked_examples():
-    # Source: reference-checks.md §1 "half-bridge pair": amplitude r/(2+r);
-    # r = 0.03, V_s = 5 V -> ±73.892 mV; r = 0.02 -> ±49.505 mV (derived, sympy).
+    # Source: (derived, shown in docs/derivations.md §2) half-bridge pair, amplitude r/(2+r):
+    # r = 0.03, V_s = 5 V -> ±73.892 mV; r = 0.02 -> ±49.505 mV.
     assert BridgeSensor.from_bridge(0.03, 5.0).amplitude_mV == pytest.approx(73.892, abs=5e-4)
     assert BridgeSensor.from_bridge(0.02, 5.0).amplitude_mV == pytest.approx(49.505, abs=5e-4)
 
@@ -36,21 +36,22 @@ def test_bridge_amplitude_agrees_with_symbolic_bridge():
 
 
 def test_decode_reference_points():
-    # Source: reference-checks.md §1 "angle recovery": (V_sin, V_cos) = (1, 0) -> 45°,
+    # Source: (derived, shown in docs/derivations.md §2) angle recovery: (V_sin, V_cos) = (1, 0) -> 45°,
     # (0, -1) -> 90°.
     assert decode_deg(0.0, 1.0) == pytest.approx(45.0)
     assert decode_deg(-1.0, 0.0) == pytest.approx(90.0)
 
 
 def test_second_bridge_reads_equal_signals_at_22_5_degrees():
-    # Source: reference-checks.md §1 "second bridge rotated 45°": θ = 22.5° -> sin2θ = cos2θ = 0.70711.
+    # Source: (derived, shown in docs/derivations.md §2) second bridge rotated 45°: θ = 22.5° -> sin2θ = cos2θ
+    # = 0.70711.
     x, y = BridgeSensor(amplitude_mV=1.0).signals(22.5)
     assert x == pytest.approx(0.70711, abs=5e-6)
     assert y == pytest.approx(0.70711, abs=5e-6)
 
 
 def test_signals_repeat_every_half_turn():
-    # Source: reference-checks.md §1 "period": θ and θ + 180° give identical outputs.
+    # Source: (derived, shown in docs/derivations.md §2) period: θ and θ + 180° give identical outputs.
     s = BridgeSensor(amplitude_mV=40.0, offset_x_mV=1.0, gain_mismatch=0.02, phase_error_deg=2.0,
                      harmonic2=0.01, harmonic3=0.02)
     theta = np.linspace(0.0, 180.0, 721)
@@ -206,7 +207,7 @@ def test_decode_of_signed_zeros_and_tiny_sin_readings_stays_in_range():
 
 
 def test_float32_decode_agrees_with_float64_within_1e_4_deg_over_the_whole_turn():
-    # Source: the float64 path as oracle; float32 rounding is 2**-24 relative, so
+    # Checked against the float64 path (not an outside source); float32 rounding is 2**-24 relative, so
     # about 1.5e-5 deg near 180° (one step of the result), well inside 1e-4 deg.
     theta = np.linspace(0.0, 360.0, 720_001)
     for sensor in (BridgeSensor(amplitude_mV=50.0),

@@ -104,7 +104,7 @@ def test_speed_bound_and_poll_period_agree_with_the_symbolic_model(small):
     t_max = eq.max_poll_period_for_speed_s(output_speed=5.0, travel_per_turn=2 / 3, output_unit="mm",
                                            narrowest_quadrant_deg=78.0, margin=0.3)
     assert result.value("max_poll_period_ms").value == pytest.approx(t_max.value * 1e3, rel=1e-12)
-    # n_max = w / (6 T) (derived, shown in docs/counter.md): 78 deg per 20 ms -> 650 rpm.
+    # Source: (derived, shown in docs/counter.md §6): n_max = w / (6 T): 78 deg per 20 ms -> 650 rpm.
     assert result.value("narrowest_quadrant_deg").value == 78.0
     assert result.value("trackable_motor_speed_rpm").value == pytest.approx(650.0)
     assert eq.solve_for("n_max_rpm", T=0.020, w_q=78.0) == pytest.approx(650.0)
@@ -123,7 +123,7 @@ def test_battery_life_agrees_with_the_symbolic_life_equation(small):
 
 def test_average_current_matches_a_hand_calculation(small):
     # 2 uA asleep; awake 170 us per 20 ms poll at 1 mA (waking and polling alike).
-    # Source: reference-checks.md section 4: I_avg = I_sleep + (I_wake - I_sleep) t_wake / T.
+    # Source: (derived, shown in docs/derivations.md §6): I_avg = I_sleep + (I_wake - I_sleep) t_wake / T.
     expected = 2.0 + (1000.0 - 2.0) * 170e-6 / 20e-3
     assert size(small, curves=False).value("average_current_uA").value == pytest.approx(expected, rel=1e-9)
 
@@ -360,7 +360,7 @@ def test_sweep_fit_values_recover_the_bridge_parameters_that_made_the_sweep(tmp_
     result = size(_sweep_design(tmp_path), base_dir=tmp_path, curves=False, simulate=False)
     val = {v.key: v for v in result.values if v.key.startswith("sensor_sweep")}
     assert all(v.group == "sensor" for v in val.values())
-    # Source: the parameters the sweep was generated with (40 uV noise on 720 samples: the
+    # Synthetic round trip: the invented sweep was generated with these parameters (40 uV noise on 720 samples: the
     # fit's standard error is about 0.04/sqrt(360) mV, so 0.02 mV is a safe bound).
     assert val["sensor_sweep_offset_x_mV"].value == pytest.approx(0.6, abs=0.02)
     assert val["sensor_sweep_offset_y_mV"].value == pytest.approx(-0.4, abs=0.02)
@@ -385,7 +385,7 @@ def test_sweep_without_reference_angles_reports_the_radial_residual(tmp_path):
     keys = {v.key for v in result.values}
     assert "sensor_sweep_residual_peak_deg" not in keys and "sensor_sweep_residual_rms_deg" not in keys
     radial = result.value("sensor_sweep_radial_residual_percent")
-    # Source: 40 uV of noise on each bridge of a 60 mV circle moves the radius by 0.04/60 RMS.
+    # Synthetic round trip: 40 uV of noise on each bridge of a 60 mV circle moves the radius by 0.04/60 RMS.
     assert radial.value == pytest.approx(100 * 0.04 / 60, rel=0.2) and radial.unit == "%"
 
 

@@ -1256,8 +1256,8 @@ def relax_advice(*, backdrive_motor_speed_rpm: float, life_years: float, capacit
             q_new = (i_max - i_s) * t_hi  # mA*s
             q_now = wake_charge
             text = (f"Cut the charge per wake-up to {q_new * 1000:.4g} uC from {q_now * 1000:.4g} uC "
-                    f"(e.g. awake time {q_new / (i_a - i_s):.4g} s at {i_a * 1000:.4g} uA, "
-                    f"from {t_a:.4g} s)." if i_a > i_s else
+                    f"(e.g. awake time {q_new / (i_a - i_s) * 1e6:.4g} us at {i_a * 1000:.4g} uA, "
+                    f"from {t_a * 1e6:.4g} us)." if i_a > i_s else
                     f"Cut the charge per wake-up to {q_new * 1000:.4g} uC.")
             options.append(RelaxOption("wake_charge", q_now * 1000, q_new * 1000, "uC",
                                        _pct(q_now * 1000, q_new * 1000), True, text))
@@ -1269,7 +1269,8 @@ def relax_advice(*, backdrive_motor_speed_rpm: float, life_years: float, capacit
         if margin > 0:
             c_new = solve_for("C_nom", I_avg=i_at_hi, L=b.life_years, k_T=b.k_T, u=b.u, s=b.s)
             options.append(RelaxOption("capacity", c, c_new, "mAh", _pct(c, c_new), True,
-                                       f"Use a battery of at least {c_new:.4g} mAh nominal, from {c:.4g} mAh."))
+                                       f"Use a battery of at least {c_new:.4g} mAh nominal, from {c:.4g} mAh, "
+                                       f"polling every {t_hi * 1e3:.4g} ms."))
         else:
             options.append(RelaxOption(
                 "capacity", c, math.nan, "mAh", math.inf, False,

@@ -37,7 +37,7 @@ from typing import Any
 import numpy as np
 
 from .errors import DesignValueError
-from .result import Check, SizingResult, Value, _fmt
+from .result import Check, SizingResult, Value, _fmt, duration_text, micro_sign
 
 __all__ = [
     "FORMAT",
@@ -138,7 +138,7 @@ def _number_text(value: Any, unit: str = "") -> str:
         text = _fmt(float(value))
     else:
         text = str(value)
-    return f"{text} {unit}".rstrip()
+    return f"{text} {micro_sign(unit)}".rstrip()
 
 
 def _target_text(check: Check, ascii_only: bool = False) -> str:
@@ -159,7 +159,7 @@ def _grouped_values(result: SizingResult) -> list[tuple[str, list[Value]]]:
 
 
 def _inputs_text(inputs: dict) -> str:
-    """The design as written, as TOML when it can be (JSON otherwise)."""
+    """The design as read, with defaults filled in, as TOML when it can be (JSON otherwise)."""
     if not inputs:
         return ""
     try:
@@ -191,7 +191,7 @@ def _context(result: SizingResult, generated_at: datetime | None) -> dict[str, A
         {
             "key": c.key, "label": c.label, "value": _number_text(c.value, c.unit),
             "target": _target_text(c), "margin": _margin_text(c), "passed": c.passed,
-            "advice": c.advice,
+            "advice": micro_sign(c.advice),
         }
         for c in result.checks
     ]
@@ -200,7 +200,7 @@ def _context(result: SizingResult, generated_at: datetime | None) -> dict[str, A
             "name": name,
             "values": [
                 {"key": v.key, "label": v.label, "text": v.formatted(), "equation": v.equation,
-                 "note": v.note}
+                 "note": micro_sign(v.note)}
                 for v in values
             ],
         }
@@ -208,7 +208,7 @@ def _context(result: SizingResult, generated_at: datetime | None) -> dict[str, A
     ]
     scenarios = [
         {
-            "name": s.name, "kind": s.kind, "duration": _number_text(s.duration_s, "s"),
+            "name": s.name, "kind": s.kind, "duration": duration_text(s.duration_s),
             "peak_speed": _number_text(s.peak_motor_speed_rpm, "rpm"), "polls": _number_text(s.polls),
             "count_error": _number_text(s.final_count_error_qt), "ambiguous": _number_text(s.ambiguous_count),
             "silent": _number_text(s.silent_error_count), "overflow": _number_text(s.overflow_count),
@@ -230,14 +230,15 @@ def _context(result: SizingResult, generated_at: datetime | None) -> dict[str, A
         "summary_line": _summary_line(result),
         "summary_detail": _summary_detail(result),
         "checks": checks,
-        "failed_advice": [(c.label, c.advice) for c in result.failed_checks if c.advice]
-        + [(f"Motion scenario {s.name!r}", s.note) for s in result.scenarios if not s.passed and "to fix:" in s.note],
+        "failed_advice": [(c.label, micro_sign(c.advice)) for c in result.failed_checks if c.advice]
+        + [(f"Motion scenario {s.name!r}", micro_sign(s.note)) for s in result.scenarios
+           if not s.passed and "to fix:" in s.note],
         "groups": groups,
         "scenarios": scenarios,
         "equations": list(result.equations),
         "equation_keys": equation_keys,
         "assumptions": list(result.assumptions),
-        "warnings": list(result.warnings),
+        "warnings": [micro_sign(w) for w in result.warnings],
         "cautions": list(result.cautions),
         "curves": list(result.curves),
         "accuracy_table": _accuracy_table(result),

@@ -417,6 +417,36 @@ class PlanetaryStage:
         """The same stage driven from its output member."""
         return replace(self, input_member=self.output_member, output_member=self.input_member)
 
+    def planet_speed(self, input_speed: int | float | Fraction = 1) -> Fraction | float:
+        """Speed of each planet about its own axis, seen from the housing.
+
+        From the sun–planet mesh relative to the carrier,
+        ``w_planet = w_carrier - (Zs/Zp) * (w_sun - w_carrier)``.
+
+        Parameters
+        ----------
+        input_speed : int, float or Fraction
+            Speed of the input member, in any unit of rotational speed (rpm, deg/s).
+
+        Returns
+        -------
+        Fraction or float
+            Planet speed in the unit of ``input_speed``; exact for int or Fraction input.
+            Positive means the planet turns the same way as the input.
+
+        Raises
+        ------
+        DesignValueError
+            When the stage has no ``planet_teeth``.
+        """
+        if self.planet_teeth is None:
+            raise DesignValueError("PlanetaryStage.planet_teeth", None, "a tooth count to give the planet speed")
+        w = {self.held: Fraction(0), self.input_member: Fraction(1), self.output_member: self._output_speed()}
+        w_planet = w["carrier"] - Fraction(self.sun_teeth, self.planet_teeth) * (w["sun"] - w["carrier"])
+        if isinstance(input_speed, float):
+            return float(w_planet) * input_speed
+        return w_planet * input_speed
+
 
 @dataclass(frozen=True, slots=True)
 class WormStage:

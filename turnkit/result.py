@@ -19,6 +19,7 @@ Conventions
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -35,6 +36,8 @@ __all__ = [
     "EquationText",
     "SizingResult",
     "relative_margin",
+    "micro_sign",
+    "duration_text",
 ]
 
 
@@ -97,7 +100,7 @@ class Value:
             text = _fmt(float(v), digits)
         else:
             text = str(v)
-        return f"{text} {self.unit}".rstrip()
+        return f"{text} {micro_sign(self.unit)}".rstrip()
 
 
 def _fmt(v: float, digits: int = 4) -> str:
@@ -271,7 +274,7 @@ class SizingResult:
     assumptions : tuple of (str, str)
         Assumption text and its source.
     inputs : dict
-        The design as written in its file (quantities as text with units).
+        The design as read, with defaults filled in (quantities as text with units).
     """
 
     design_name: str
@@ -323,3 +326,62 @@ class SizingResult:
         from .export import to_html
 
         return to_html(self, standalone=False)
+
+
+# "u" as the micro prefix of a unit: after a digit, a digit and a space, or an opening bracket or
+# slash, and followed by a unit symbol that ends the word ("15 uA", "(us)", "[uC]", "mAh/uA").
+_MICRO_PREFIX = re.compile(r"(?:(?<=\d)|(?<=\d )|(?<=[(\[/])|^)u(?=(?:A|Ah|s|C|J|V|W|Wh|F|H|m)(?![\w]))")
+
+
+def micro_sign(text: str) -> str:
+    """Text with the ASCII micro prefix ``u`` of units written as ``µ`` (``"15 uA"`` → ``"15 µA"``).
+
+    Design files and the JSON summary keep ``uA`` and ``us`` (plain ASCII, what pint reads); labels,
+    readouts and tables that people read show ``µA`` and ``µs``.
+
+    Parameters
+    ----------
+    text : str
+        A unit (``"uA"``) or a sentence with quantities in it.
+
+    Returns
+    -------
+    str
+        The same text with each micro prefix written as the micro sign (U+00B5).
+    """
+    return _MICRO_PREFIX.sub("µ", text) if "u" in text else text
+
+
+_SECONDS_PER_YEAR = 365.25 * 86400.0  # the Julian year, as everywhere in turnkit
+
+
+def duration_text(seconds: float, digits: int = 4) -> str:
+    """A duration in the unit people read it in: s, min, h, days or years.
+
+    Parameters
+    ----------
+    seconds : float
+        The duration in s.
+    digits : int
+        Significant figures.
+
+    Returns
+    -------
+    str
+        For example ``"15.49 s"``, ``"30 days"``, ``"10 years"`` (a year is 365.25 days).
+    """
+    s = float(seconds)
+    if not math.isfinite(s) or abs(s) < 120.0:
+        unit, scale = "s", 1.0
+    elif abs(s) < 2 * 3600.0:
+        unit, scale = "min", 60.0
+    elif abs(s) < 2 * 86400.0:
+        unit, scale = "h", 3600.0
+    elif abs(s) < _SECONDS_PER_YEAR:
+        unit, scale = "days", 86400.0
+    else:
+        unit, scale = "years", _SECONDS_PER_YEAR
+    if not math.isfinite(s):
+        return _fmt(s, digits)
+    text = _fmt(s / scale, digits)
+    return f"{text} {unit[:-1] if text == '1' and unit.endswith('s') and unit != 's' else unit}"

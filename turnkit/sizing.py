@@ -102,6 +102,9 @@ GENERAL_CAUTIONS: tuple[str, ...] = (
     "These figures are design estimates, not a safety case. Where the position feeds a safety "
     "function, assess it under the applicable functional-safety standard (IEC 61508, ISO 13849-1, "
     "IEC 62061, ISO 26262 or your sector's) and rely on licensed practice where the law asks for it.",
+    "A hand wheel or crank on the motor shaft spins whenever the motor runs and can strike or catch "
+    "the hand on it: declutch it from the motor, or fit an interlock that keeps the motor off while it "
+    "is engaged (common practice).",
 )
 
 _BACKDRIVE_CAUTION = (
@@ -776,7 +779,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     margin = latch_mod.half_turn_margin(build_latches(design), fine_error_deg=motor_peak)
     add("half_turn_margin_deg", "Half-turn margin of the quadrant latches", margin.margin_deg, "deg", "sensor",
         note="45 deg less latch tolerance, half the hysteresis, misalignment and sensor error")
-    checks.append(_check("half_turn_margin", "Latch tolerances and sensor error leave the half-turn decision safe",
+    checks.append(_check("half_turn_margin", "Latch tolerances and sensor error leave the half-turn decision correct",
                          margin.consumed_deg, margin.available_deg, "deg", "<=",
                          advice="tighten the latch switch-point tolerance, the hysteresis or the magnet alignment"))
     if not margin.ok:
@@ -885,12 +888,14 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
                 need_cap = float(batt.capacity_needed_mAh(budget.average_current_uA, req.battery_life_years, pack,
                                                           temperature_C=temperature_C, usable_fraction=usable))
                 # Rounded up, so that a battery of the size named does last the life.
-                advice = f"a battery of at least {counting.round_up_sig(need_cap):.4g} mAh, or a lower average current"
+                advice = (f"a battery of at least {counting.round_up_sig(need_cap):.4g} mAh at the present poll "
+                          f"period of {schedule.poll_period_s * 1e3:.4g} ms, or a lower average current")
                 if req_speed is not None and max_period_s > schedule.poll_period_s * 1.01:
                     advice += (f"; polling only as often as the back-drive speed needs (every "
                                f"{max_period_s * 1e3:.4g} ms) also saves charge")
-                add("capacity_needed_mAh", "Capacity needed for the required life", need_cap, "mAh", "battery",
-                    equation="capacity_for_life")
+                add("capacity_needed_mAh", "Capacity needed for the required life at the present poll period",
+                    need_cap, "mAh", "battery", equation="capacity_for_life",
+                    note=f"polling every {schedule.poll_period_s * 1e3:.4g} ms while asleep")
                 # Largest sleep current that still lasts the life: solve the life equation for the
                 # average current, then give the whole change to the time spent asleep.
                 asleep_share = budget.state_fractions()["asleep"]
@@ -1128,21 +1133,23 @@ def _curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
                          markers=(Marker("this design", ratio, required_rpm),), log_x=True, log_y=True,
                          note="more reduction: finer resolution, but the motor spins faster under back-drive"))
 
-    # (d) current over one poll cycle
+    # (d) current over one poll cycle, on a log time axis from the wake-up on: a pulse of a few
+    # microseconds and a sleep of many milliseconds both get room, so the pulse's shape shows.
     totals = profile.state_totals_uA()
     t_wake = schedule.wake_time_s + schedule.settle_time_s
     T = schedule.poll_period_s
-    pts_t = np.array([0.0, 0.0, t_wake, t_wake, t_wake + schedule.poll_time_s, t_wake + schedule.poll_time_s, T])
-    pts_i = np.array([totals["asleep"], totals["waking"], totals["waking"], totals["polling"], totals["polling"],
-                      totals["asleep"], totals["asleep"]])
-    cyc_t = np.concatenate([pts_t, pts_t[1:] + T]) * 1e3
-    cyc_i = np.concatenate([pts_i, pts_i[1:]])
+    t_awake = t_wake + schedule.poll_time_s
+    t_first = min(t_wake, schedule.poll_time_s, T - t_awake) / 10.0 if T > t_awake else t_awake / 100.0
+    cyc_t = np.array([t_first, t_wake, t_wake, t_awake, t_awake, T]) * 1e3
+    cyc_i = np.array([totals["waking"], totals["waking"], totals["polling"], totals["polling"], totals["asleep"],
+                      totals["asleep"]])
     avg = float(power.average_current_uA(profile, **sched_kw))
-    out.append(Curve("current_profile", "Current over two poll cycles", "time", "ms", "current", "uA",
+    out.append(Curve("current_profile", "Current over one poll cycle", "time since wake-up", "ms", "current", "uA",
                      (Series("supply current", cyc_t, cyc_i),
                       Series("average", cyc_t[[0, -1]], np.full(2, avg), style="dashed")),
-                     log_y=True,
-                     note=f"duty cycle {awake_s / T * 100:.3g} %, average {avg:.4g} uA"))
+                     log_x=True, log_y=True,
+                     note=f"awake {t_awake * 1e6:.4g} us of every {T * 1e3:.4g} ms: duty cycle "
+                          f"{awake_s / T * 100:.3g} %, average {avg:.4g} uA"))
 
     # (e) sensor angle error over a turn
     out.append(Curve("sensor_error", "Sensor angle error over one motor turn", "motor angle", "deg", "angle error",

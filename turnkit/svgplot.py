@@ -29,6 +29,8 @@ from html import escape
 
 import numpy as np
 
+from .result import micro_sign
+
 __all__ = ["PALETTE", "DASHES", "curve_to_svg", "linear_ticks", "log_ticks", "format_tick", "tick_labels"]
 
 #: Colour-blind-safe colours, in the order series use them (black last: it is
@@ -267,7 +269,7 @@ def curve_to_svg(curve, *, width: int = 640, height: int = 340, title: bool = Tr
             text = format_tick(float(f"{value:.4g}"))
         else:
             text = "unlimited" if value > 0 else "-unlimited"
-        return f"{text} {unit}".rstrip()
+        return f"{text} {micro_sign(unit)}".rstrip()
 
     # Reference items carry their numbers in the legend, so a printed page shows them too.
     legend_items = [(s.name, "series", i) for i, s in enumerate(curve.series)]
@@ -341,7 +343,7 @@ def curve_to_svg(curve, *, width: int = 640, height: int = 340, title: bool = Tr
 
     # Axis labels with units.
     def axis_text(name: str, unit: str, log: bool) -> str:
-        text = f"{name} ({unit})" if unit else name
+        text = f"{name} ({micro_sign(unit)})" if unit else name
         return text + (", log scale" if log else "")
 
     out.append(f'<text x="{(left + right) / 2:.2f}" y="{bottom + 38}" text-anchor="middle" font-size="12" '

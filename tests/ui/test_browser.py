@@ -1,7 +1,9 @@
 """The dashboard in a real browser: JupyterLab in headless Chromium, driven by Playwright.
 
 One JupyterLab server and one Chromium per session. The test opens a demo
-notebook, runs all cells, moves the poll-period slider and checks that the
+notebook, runs all cells, checks the header's one-line caution and the
+badge's wording ("9 of 9 pass"), moves the poll-period slider, checks that
+its handle tells screen readers the value with its unit, and checks that the
 battery-life readout and the marker on the life-versus-poll-period plot
 changed to the values the sizing engine gives for the new period, that
 every plot was painted, and that no widget error appeared. Screenshots go
@@ -206,6 +208,15 @@ def test_dashboard_responds_to_the_poll_period_slider_in_jupyterlab(lab, browser
         for i in range(n_plots):
             expect(page.locator(".tk-app .tk-plot").nth(i).locator("canvas").first).to_be_visible()
         assert page.locator(".jupyter-widgets-error-widget, .jp-Dialog").count() == 0
+        # The header carries the one-line caution and a badge that counts what passes.
+        from turnkit.ui.dashboard import HEADER_CAUTION
+
+        expect(page.locator(".tk-app #tk-header-caution").first).to_have_text(HEADER_CAUTION)
+        expect(page.locator(".tk-app #tk-header-caution").first).to_be_visible()
+        result = size(_demo_design(), base_dir=ROOT / "demo")
+        total = len(result.checks) + len(result.scenarios)
+        assert result.passed
+        expect(page.locator(".tk-app #tk-status-text").first).to_have_text(f"{total} of {total} pass")
         marker = page.locator(".tk-app .tk-plot-life-vs-poll-period .tk-cap-marker").first
         expect(marker).to_be_visible()
         life_before = life.inner_text()
@@ -226,6 +237,10 @@ def test_dashboard_responds_to_the_poll_period_slider_in_jupyterlab(lab, browser
         page.keyboard.press("Enter")
         expect(readout).not_to_have_text(old_text)
         assert float(readout.inner_text()) == pytest.approx(new, rel=0.01)
+        # A log slider's handle tells screen readers the real value and its unit, not the exponent.
+        handle = slider.locator(".noUi-handle").first
+        expect(handle).to_have_attribute("aria-valuetext", f"{readout.inner_text().strip()} {tunable.unit}")
+        expect(handle).to_have_attribute("aria-label", re.compile(re.escape(tunable.label)))
 
         expect(life).to_have_text(life_expected, timeout=30_000)
         expect(marker).to_contain_text(marker_expected, timeout=30_000)

@@ -26,7 +26,7 @@ pytest.importorskip("ipywidgets")
 pytest.importorskip("jupyter_bokeh")
 
 from turnkit.errors import DesignValueError  # noqa: E402
-from turnkit.result import Band, Check, Curve, Marker, Scenario, Series, SizingResult, Value  # noqa: E402
+from turnkit.result import Band, Check, Curve, Marker, Scenario, Series, SizingResult, Value, micro_sign  # noqa: E402
 from turnkit.ui import plots  # noqa: E402
 from turnkit.ui.dashboard import Dashboard  # noqa: E402
 
@@ -150,7 +150,7 @@ def _life_text(dash) -> str:
 def test_dashboard_builds_one_control_per_tunable_with_units_in_labels(toy):
     assert list(toy.controls) == ["reduction", "poll_period_ms", "sleep_current_uA", "cells"]
     assert "Poll period (ms)" in toy.labels["poll_period_ms"].value
-    assert "Sleep current (uA)" in toy.labels["sleep_current_uA"].value
+    assert "Sleep current (µA)" in toy.labels["sleep_current_uA"].value
     assert toy.controls["poll_period_ms"].tooltip == "Poll period (ms)"
     assert type(toy.controls["poll_period_ms"]).__name__ == "FloatLogSlider"
     assert type(toy.controls["cells"]).__name__ == "IntSlider"
@@ -455,9 +455,10 @@ def test_demo_dashboard_draws_every_curve_of_the_result(demo):
 def test_demo_controls_are_labelled_with_their_unit_once(demo):
     for key, tunable in zip(demo.controls, demo.tunables):
         text = demo.labels[key].value
-        assert html.escape(tunable.label) in text
+        # Labels show the micro sign: "(µs)", where the tunable's own unit is "us".
+        assert html.escape(micro_sign(tunable.label)) in text
         if tunable.unit:
-            assert text.count(f"({html.escape(tunable.unit)})") == 1, text
+            assert text.count(f"({html.escape(micro_sign(tunable.unit))})") == 1, text
     assert type(demo.controls["schedule.poll_period_ms"]).__name__ == "FloatLogSlider"
 
 

@@ -35,11 +35,11 @@ import ipywidgets as widgets
 from jupyter_bokeh import BokehModel
 
 from ..errors import TurnkitError
-from ..result import Check, SizingResult, Value
+from ..result import Check, SizingResult, Value, micro_sign
 from . import plots
 from .plots import format_number
 
-__all__ = ["Dashboard", "PLOT_ORDER", "READOUTS"]
+__all__ = ["Dashboard", "HEADER_CAUTION", "PLOT_ORDER", "READOUTS"]
 
 #: Curve keys in the order the plots are laid out; other curves follow.
 PLOT_ORDER: tuple[str, ...] = (
@@ -77,6 +77,12 @@ READOUTS: tuple[Readout, ...] = (
     Readout("life", "battery life", ("service_life_years", "battery_life_years")),
 )
 
+#: The one-line caution under the dashboard's title (the full cautions are in the requirement panel).
+HEADER_CAUTION = (
+    "⚠ Design estimates, not a safety case: powered actuators pinch and crush, and a lost count moves "
+    "them to the wrong place. Follow local codes, functional-safety standards and licensed practice."
+)
+
 #: Width of one step of a logarithmic slider, in decades (about 1.2 %).
 LOG_STEP_DECADES = 0.005
 
@@ -85,6 +91,7 @@ _CSS = """
 .tk-app { font-family: 'Source Sans 3', 'Segoe UI', 'Helvetica Neue', Arial, sans-serif; color: #1f2a33; }
 .tk-app .tk-header { display: flex; align-items: baseline; gap: 14px; margin: 2px 0 6px 0; }
 .tk-app .tk-title { font-size: 18px; font-weight: 600; }
+.tk-app .tk-header-caution { font-size: 12.5px; color: #6b2d00; margin: 0 0 6px 0; }
 .tk-app .tk-badge { border-radius: 4px; padding: 1px 8px; font-size: 12px; font-weight: 700;
   letter-spacing: .04em; border: 1.5px solid; }
 .tk-app .tk-badge.tk-pass { color: #005a8c; border-color: #0072B2; background: #eaf4fa; }
@@ -94,6 +101,21 @@ _CSS = """
 .tk-app .tk-card-label { font-size: 11px; color: #4a5864; text-transform: lowercase; }
 .tk-app .tk-card-value { font-size: 17px; font-weight: 600; font-variant-numeric: tabular-nums; }
 .tk-app .tk-plots, .tk-app .tk-readouts, .tk-app .tk-body { gap: 8px; }
+/* Side panel: readouts and controls stay in view while the plots scroll past. Sticky needs every
+   box between it and the notebook's scroller to let it overflow, JupyterLab's output area included. */
+.jp-OutputArea-output:has(.tk-app), .jp-OutputArea-child:has(.tk-app), .jp-Cell-outputArea:has(.tk-app),
+.tk-app, .tk-app .tk-body { overflow: visible !important; }
+.tk-app .tk-side { position: sticky; top: 0; z-index: 3; align-self: flex-start; background: #ffffff;
+  max-height: calc(100vh - 130px); display: flex; flex-direction: column; gap: 6px; }
+.tk-app .tk-side .tk-readouts, .tk-app .tk-side .tk-actions { flex: 0 0 auto; gap: 4px; }
+.tk-app .tk-actions .widget-html, .tk-app .tk-actions .widget-html-content { height: auto; min-height: 0;
+  line-height: 1.3; }
+.tk-app .tk-side .tk-card .widget-html-content, .tk-app .tk-side .tk-card div { line-height: 1.3; }
+.tk-app .tk-side .tk-card-label { white-space: nowrap; overflow: hidden; text-overflow: ellipsis; }
+.tk-app .tk-side .tk-card { min-width: 0; flex: 1 1 150px; padding: 2px 8px; margin: 0; }
+.tk-app .tk-side .tk-card-value { font-size: 15px; white-space: nowrap; }
+.tk-app .tk-side .tk-controls { flex: 1 1 auto; min-height: 120px; overflow-y: auto !important;
+  overflow-x: hidden !important; }
 .tk-app .tk-controls { border-right: 1px solid #e3e8ec; padding-right: 8px; }
 .tk-app .tk-control-label { font-size: 12.5px; color: #33414d; margin: 2px 0 0 2px; line-height: 1.2; }
 .tk-app .tk-controls .widget-html { margin-bottom: 0; }
@@ -104,7 +126,8 @@ _CSS = """
   padding: 3px 6px; }
 .tk-app table.tk-table td { border-bottom: 1px solid #e3e8ec; padding: 3px 6px; vertical-align: top;
   font-variant-numeric: tabular-nums; }
-.tk-app tr.tk-fail td { background: #fdf3ec; }
+.tk-app table.tk-table td.tk-num { white-space: nowrap; }
+.tk-app tr.tk-fail td { background: #fdf0e8; }
 .tk-app .tk-verdict { font-weight: 700; }
 .tk-app tr.tk-pass .tk-verdict { color: #005a8c; }
 .tk-app tr.tk-fail .tk-verdict { color: #8a3600; }
@@ -289,13 +312,15 @@ class Dashboard:
             label = widgets.HTML(f"<div class='tk-control-label'>{html.escape(_label(self._by_key[key]))}</div>")
             self.labels[key] = label
             control_rows += [label, control] + ([self.typed[key]] if key in self.typed else [])
-        control_rows += [
+        # The buttons and their messages sit above the controls, so they stay in view with them.
+        actions_box = widgets.VBox([
             widgets.HBox([self.save_button, self.export_button, self.reset_button],
-                         layout=widgets.Layout(flex_flow="row wrap", margin="8px 0 0 0")),
+                         layout=widgets.Layout(flex_flow="row wrap", margin="2px 0 0 0")),
             self.files,
             self.message,
-        ]
-        controls_box = widgets.VBox(control_rows, layout=widgets.Layout(width="340px", flex="0 0 340px"))
+        ])
+        actions_box.add_class("tk-actions")
+        controls_box = widgets.VBox(control_rows, layout=widgets.Layout(width="350px"))
         controls_box.add_class("tk-controls")
         plots_box = widgets.Box(
             list(self.plot_widgets.values()),
@@ -305,9 +330,15 @@ class Dashboard:
         readouts_box = widgets.HBox(list(self.readouts.values()),
                                     layout=widgets.Layout(flex_flow="row wrap"))
         readouts_box.add_class("tk-readouts")
-        body = widgets.HBox([controls_box, plots_box],
+        # The headline numbers and the controls share a side panel that stays in view while the
+        # plots beside it scroll (see _CSS: sticky, with the controls scrolling inside it).
+        side = widgets.VBox([readouts_box, actions_box, controls_box],
+                            layout=widgets.Layout(width="350px", flex="0 0 350px"))
+        side.add_class("tk-side")
+        body = widgets.HBox([side, plots_box],
                             layout=widgets.Layout(flex_flow="row wrap", align_items="flex-start"))
-        self.widget = widgets.VBox([widgets.HTML(_CSS), self._header, readouts_box, body,
+        body.add_class("tk-body")
+        self.widget = widgets.VBox([widgets.HTML(_CSS), self._header, body,
                                     self.requirements, self._values_box])
         self.widget.add_class("tk-app")
         self._refresh_text()
@@ -331,6 +362,7 @@ class Dashboard:
                     * LOG_STEP_DECADES
             slider = widgets.FloatLogSlider(value=value, base=10.0, min=lmin, max=lmax, step=LOG_STEP_DECADES,
                                             readout_format=".3r", **common)
+            slider.add_class("tk-log-slider")
         elif _integer_control(t, lo, hi):
             slider = widgets.IntSlider(value=int(round(value)), min=int(lo), max=int(hi),
                                        step=max(int(t.step), 1), **common)
@@ -549,13 +581,14 @@ class Dashboard:
         failed = len(r.failed_checks) + sum(1 for s in r.scenarios if not s.passed)
         total = len(r.checks) + len(r.scenarios)
         if failed:
-            badge = f"<span id='tk-status-text' class='tk-badge tk-fail'>FAIL · {failed} of {total}</span>"
+            badge = f"<span id='tk-status-text' class='tk-badge tk-fail'>{failed} of {total} fail</span>"
         else:
-            badge = f"<span id='tk-status-text' class='tk-badge tk-pass'>PASS · {total} of {total}</span>"
+            badge = f"<span id='tk-status-text' class='tk-badge tk-pass'>{total} of {total} pass</span>"
         source = f" · <code>{html.escape(self.path.name)}</code>" if self.path is not None else ""
         self._header.value = (f"<div class='tk-header'><span class='tk-title'>{html.escape(r.design_name)}"
                               f"</span>{badge}<span class='tk-card-label'>turnkit {html.escape(r.turnkit_version)}"
-                              f"{source}</span></div>")
+                              f"{source}</span></div>"
+                              f"<div class='tk-header-caution' id='tk-header-caution'>{html.escape(HEADER_CAUTION)}</div>")
         for readout in READOUTS:
             value = _first_value(r, readout.keys)
             box = self.readouts[readout.name]
@@ -638,6 +671,7 @@ class Dashboard:
 
         _load_bokehjs()
         display(self.widget)
+        _describe_log_sliders()
 
     def _ipython_display_(self) -> None:
         self.show()
@@ -655,6 +689,42 @@ def _load_bokehjs() -> None:
     from bokeh.resources import INLINE
 
     output_notebook(INLINE, hide_banner=True)
+
+
+#: Page script: a log slider's handle reports the exponent as its value (aria-valuenow); give screen
+#: readers the real value with its unit (aria-valuetext, from the readout and the label shown above
+#: the control) and the label itself (aria-label). Installed once per page; it follows every change.
+_LOG_SLIDER_TEXT_JS = r"""
+(function () {
+  if (window.turnkitDescribeLogSliders) { window.turnkitDescribeLogSliders(); return; }
+  const labelOf = (box) => { const prev = box.previousElementSibling;
+    const el = prev && prev.querySelector('.tk-control-label'); return el ? el.textContent.trim() : ''; };
+  const unitOf = (label) => { const m = /\(([^()]*)\)\s*$/.exec(label); return m ? ' ' + m[1] : ''; };
+  const describe = () => {
+    document.querySelectorAll('.tk-app .tk-log-slider').forEach((box) => {
+      const handle = box.querySelector('.noUi-handle');
+      const readout = box.querySelector('.widget-readout');
+      if (!handle || !readout) { return; }
+      const label = labelOf(box);
+      const text = readout.textContent.trim() + unitOf(label);
+      if (handle.getAttribute('aria-valuetext') !== text) { handle.setAttribute('aria-valuetext', text); }
+      if (label && handle.getAttribute('aria-label') !== label) { handle.setAttribute('aria-label', label); }
+    });
+  };
+  let queued = false;
+  const soon = () => { if (!queued) { queued = true; requestAnimationFrame(() => { queued = false; describe(); }); } };
+  window.turnkitDescribeLogSliders = describe;
+  new MutationObserver(soon).observe(document.body, {subtree: true, childList: true, characterData: true,
+    attributes: true, attributeFilter: ['aria-valuetext', 'aria-valuenow']});
+  describe();
+})();
+"""
+
+
+def _describe_log_sliders() -> None:
+    from IPython.display import Javascript, display
+
+    display(Javascript(_LOG_SLIDER_TEXT_JS))
 
 
 def _default_size(path: Path | None):
@@ -680,8 +750,8 @@ def _default_tunables(design) -> tuple[Any, ...]:
 def _label(t) -> str:
     """The control's label with its unit, once (tunable labels may already carry it)."""
     if not t.unit or f"({t.unit})" in t.label:
-        return t.label
-    return f"{t.label} ({t.unit})"
+        return micro_sign(t.label)
+    return micro_sign(f"{t.label} ({t.unit})")
 
 
 def _choice_label(key: str, value: Any) -> str:
@@ -726,14 +796,20 @@ def _first_value(result: SizingResult, keys: Sequence[str]) -> Value | None:
     return None
 
 
+def _count_text(n: float) -> str:
+    """A whole count with thin groups of three digits ("1 577 880 000")."""
+    return f"{int(n):,}".replace(",", "\u2009")
+
+
 def _check_row(c: Check) -> str:
     verdict = "PASS" if c.passed else "FAIL"
     cls = "tk-pass" if c.passed else "tk-fail"
+    # Numbers and their units stay on one line; only the label and the advice wrap.
     return (f"<tr class='{cls}' data-key='{html.escape(c.key)}'><td>{html.escape(c.label)}</td>"
-            f"<td>{html.escape(format_number(c.value, c.unit))}</td>"
-            f"<td>{html.escape(c.comparison)} {html.escape(format_number(c.target, c.unit))}</td>"
-            f"<td>{html.escape(_percent(c.margin))}</td><td class='tk-verdict'>{verdict}</td>"
-            f"<td class='tk-advice'>{html.escape(c.advice)}</td></tr>")
+            f"<td class='tk-num'>{html.escape(format_number(c.value, c.unit))}</td>"
+            f"<td class='tk-num'>{html.escape(c.comparison)} {html.escape(format_number(c.target, c.unit))}</td>"
+            f"<td class='tk-num'>{html.escape(_percent(c.margin))}</td><td class='tk-verdict'>{verdict}</td>"
+            f"<td class='tk-advice'>{html.escape(micro_sign(c.advice))}</td></tr>")
 
 
 def requirements_html(result: SizingResult) -> str:
@@ -768,15 +844,16 @@ def requirements_html(result: SizingResult) -> str:
             parts.append(
                 f"<tr class='{cls}' data-key='{html.escape(s.name)}'><td>{html.escape(s.name)}"
                 f"{' <span class=tk-advice>(' + html.escape(s.note) + ')</span>' if s.note else ''}</td>"
-                f"<td>{html.escape(format_number(s.peak_motor_speed_rpm, 'rpm'))}</td><td>{int(s.polls)}</td>"
-                f"<td>{int(s.final_count_error_qt)} quarter-turns</td><td>{int(s.ambiguous_count)}</td>"
+                f"<td class='tk-num'>{html.escape(format_number(s.peak_motor_speed_rpm, 'rpm'))}</td>"
+                f"<td class='tk-num'>{_count_text(s.polls)}</td>"
+                f"<td class='tk-num'>{int(s.final_count_error_qt)} quarter-turns</td><td>{int(s.ambiguous_count)}</td>"
                 f"<td>{int(s.silent_error_count)}</td><td>{int(s.overflow_count)}</td>"
-                f"<td>{html.escape(format_number(s.max_output_error, s.output_unit))}</td>"
+                f"<td class='tk-num'>{html.escape(format_number(s.max_output_error, s.output_unit))}</td>"
                 f"<td class='tk-verdict'>{verdict}</td></tr>")
         parts.append("</tbody></table>")
     if result.warnings:
         parts.append("<div class='tk-section-title'>Warnings</div><ul class='tk-notes tk-warnings'>")
-        parts.extend(f"<li>{html.escape(w)}</li>" for w in result.warnings)
+        parts.extend(f"<li>{html.escape(micro_sign(w))}</li>" for w in result.warnings)
         parts.append("</ul>")
     if result.cautions:
         parts.append("<div class='tk-section-title'>Cautions</div><ul class='tk-notes tk-caution'>")
@@ -795,5 +872,6 @@ def values_html(result: SizingResult) -> str:
         rows.append(f"<tr><th colspan='3'>{html.escape(group)}</th></tr>")
         for v in values:
             rows.append(f"<tr data-key='{html.escape(v.key)}'><td>{html.escape(v.label)}</td>"
-                        f"<td>{html.escape(v.formatted())}</td><td class='tk-advice'>{html.escape(v.note)}</td></tr>")
+                        f"<td class='tk-num'>{html.escape(micro_sign(v.formatted()))}</td>"
+                        f"<td class='tk-advice'>{html.escape(micro_sign(v.note))}</td></tr>")
     return f"<table class='tk-table' id='tk-values-table'><tbody>{''.join(rows)}</tbody></table>"

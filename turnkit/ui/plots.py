@@ -26,10 +26,10 @@ from typing import Any
 
 import numpy as np
 from bokeh.layouts import column
-from bokeh.models import ColumnDataSource, Div, HoverTool, Legend, LegendItem, PrintfTickFormatter
+from bokeh.models import ColumnDataSource, CustomJSTicker, Div, HoverTool, Legend, LegendItem, PrintfTickFormatter
 from bokeh.plotting import figure
 
-from ..result import Curve, Value
+from ..result import Curve, Value, micro_sign
 
 __all__ = [
     "OKABE_ITO",
@@ -60,6 +60,34 @@ SERIES_COLOURS: tuple[str, ...] = tuple(OKABE_ITO[k] for k in (
     "blue", "orange", "bluish_green", "reddish_purple", "sky_blue", "vermillion", "black", "yellow"))
 
 _LINE_DASHES = ("solid", "dotdash", "dotted", "dashdot")
+
+#: Tick code for logarithmic axes: the sparsest of the mantissa sets that gives at least three
+#: labels in view (1; 1-3; 1-2-5; 1-2-3-5-7; every digit); over many decades every k-th decade only.
+_LOG_TICKS_JS = """
+const lo = Math.min(cb_data.start, cb_data.end), hi = Math.max(cb_data.start, cb_data.end);
+if (!(lo > 0) || !(hi > lo) || !isFinite(hi)) { return []; }
+const sets = [[1], [1, 3], [1, 2, 5], [1, 2, 3, 5, 7], [1, 1.5, 2, 3, 4, 5, 6, 7, 8, 9]];
+let ticks = [];
+for (const set of sets) {
+  ticks = [];
+  for (let e = Math.floor(Math.log10(lo)) - 1; e <= Math.ceil(Math.log10(hi)); e++) {
+    for (const m of set) {
+      const t = Number((m * Math.pow(10, e)).toPrecision(12));
+      if (t >= lo && t <= hi) { ticks.push(t); }
+    }
+  }
+  if (ticks.length >= 3) { break; }
+}
+if (ticks.length > 7) {
+  const k = Math.ceil(ticks.length / 6);
+  ticks = ticks.filter((t, i) => i % k === 0);
+}
+return ticks;
+"""
+
+
+def _log_ticker() -> CustomJSTicker:
+    return CustomJSTicker(major_code=_LOG_TICKS_JS, minor_code="return []")
 _MARKER_COLOUR = OKABE_ITO["black"]
 _LIMIT_COLOUR = OKABE_ITO["vermillion"]
 _FONT = "'Source Sans 3', 'Segoe UI', 'Helvetica Neue', Arial, sans-serif"
@@ -74,7 +102,7 @@ def format_number(value: float, unit: str = "") -> str:
 
 def axis_title(label: str, unit: str) -> str:
     """Axis title with its unit in brackets (``"poll period [ms]"``)."""
-    return f"{label} [{unit}]" if unit else label
+    return f"{label} [{micro_sign(unit)}]" if unit else label
 
 
 @dataclass(eq=False)
@@ -208,7 +236,7 @@ def caption_text(curve: Curve) -> str:
             parts.append(f"<span class='tk-cap-limit'>┆ {html.escape(v.name)}: "
                          f"{html.escape(format_number(v.x, curve.x_unit))}</span>")
     if curve.note:
-        parts.append(f"<span class='tk-cap-note'>{html.escape(curve.note)}</span>")
+        parts.append(f"<span class='tk-cap-note'>{html.escape(micro_sign(curve.note))}</span>")
     return " &nbsp;·&nbsp; ".join(parts)
 
 
@@ -280,6 +308,12 @@ def build_figure(curve: Curve, *, width: int = 430, height: int = 290) -> Figure
         fig.xaxis.formatter = PrintfTickFormatter(format="%g")
     if curve.log_y:
         fig.yaxis.formatter = PrintfTickFormatter(format="%g")
+    # Bokeh labels a log axis spanning less than two decades with linear steps ("30 40 50 60 70"),
+    # crowded at the top; label 1-3 or 1-2-5 steps instead, about evenly spaced on the log scale.
+    if curve.log_x:
+        fig.xaxis.ticker = fig.xgrid.ticker = _log_ticker()
+    if curve.log_y:
+        fig.yaxis.ticker = fig.ygrid.ticker = _log_ticker()
     # Below the plot, so that it never hides a curve.
     legend = Legend(items=[], orientation="horizontal", ncols=3, click_policy="hide",
                     label_text_font=_FONT, label_text_font_size="11px", border_line_color=None,
@@ -333,12 +367,16 @@ def _same_column(a, b) -> bool:
     return list(a) == list(b)
 
 
-def _replace(source: ColumnDataSource, data: dict[str, Any]) -> None:
-    """Replace a source's data unless it is unchanged (an unchanged plot sends nothing to the page)."""
+def _replace(source: ColumnDataSource, data: dict[str, Any]) -> bool:
+    """Replace a source's data unless it is unchanged (an unchanged plot sends nothing to the page).
+
+    Returns True when the data were replaced.
+    """
     old = source.data
     if old.keys() == data.keys() and all(_same_column(old[k], data[k]) for k in data):
-        return
+        return False
     source.data = data
+    return True
 
 
 def update(handles: FigureHandles, curve: Curve) -> None:
@@ -363,25 +401,32 @@ def update(handles: FigureHandles, curve: Curve) -> None:
         doc.hold("combine")
     try:
         seen = set()
+        changed = False
         for s in curve.series:
             seen.add(s.name)
             source = handles.series.get(s.name)
             if source is None:
                 _add_series(handles, s.name, s.style, s.x, s.y)
+                changed = True
             else:
-                _replace(source, {"x": np.asarray(s.x, dtype=float), "y": np.asarray(s.y, dtype=float)})
+                changed |= _replace(source, {"x": np.asarray(s.x, dtype=float), "y": np.asarray(s.y, dtype=float)})
         for name, source in handles.series.items():
             if name not in seen:
-                _replace(source, {"x": np.array([], dtype=float), "y": np.array([], dtype=float)})
-        _replace(handles.markers, _marker_data(curve))
-        _replace(handles.vlines, _vline_data(curve))
-        _replace(handles.bands, _band_data(curve))
+                changed |= _replace(source, {"x": np.array([], dtype=float), "y": np.array([], dtype=float)})
+        changed |= _replace(handles.markers, _marker_data(curve))
+        changed |= _replace(handles.vlines, _vline_data(curve))
+        changed |= _replace(handles.bands, _band_data(curve))
         caption = caption_text(curve)
         if handles.caption.text != caption:
             handles.caption.text = caption
         if handles.figure.title.text != curve.title:
             handles.figure.title.text = curve.title
         _label_budget_parts(handles, curve)
+        # BokehJS repaints the legend's swatches (small canvases of their own) only when the legend
+        # itself changes: after new data moved the axes, they were left blank. Any change to the
+        # legend model makes the page re-render it, so count the updates in its tags.
+        if changed and handles.legend is not None:
+            handles.legend.tags = [int(handles.legend.tags[0]) + 1 if handles.legend.tags else 1]
     finally:
         if doc is not None:
             doc.unhold()
