@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Callable
 
 import numpy as np
 
@@ -35,6 +35,7 @@ __all__ = [
     "EquationText",
     "SizingResult",
     "relative_margin",
+    "register_view",
 ]
 
 
@@ -319,7 +320,25 @@ class SizingResult:
                 return c
         raise KeyError(f"no curve {key!r}; known: {', '.join(c.key for c in self.curves)}")
 
-    def _repr_html_(self) -> str:
-        from .export import to_html
+    def _repr_html_(self) -> str | None:
+        # The view is registered by turnkit.export (imported by the sizing engine), so this
+        # data module depends on no view. None lets a notebook fall back to the plain repr.
+        view = _VIEWS.get("text/html")
+        return view(self) if view is not None else None
 
-        return to_html(self, standalone=False)
+
+#: Views that draw a :class:`SizingResult`, by MIME type (see :func:`register_view`).
+_VIEWS: dict[str, Callable[[SizingResult], str]] = {}
+
+
+def register_view(mime_type: str, view: Callable[[SizingResult], str]) -> None:
+    """Register the function that draws a result as ``mime_type`` (e.g. ``"text/html"`` for notebooks).
+
+    Parameters
+    ----------
+    mime_type : str
+        The MIME type the view produces.
+    view : callable
+        Takes a :class:`SizingResult`, returns its text in that type.
+    """
+    _VIEWS[mime_type] = view

@@ -54,7 +54,7 @@ import hashlib
 import math
 import tomllib
 import warnings
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from fractions import Fraction
 from functools import lru_cache
 from pathlib import Path
@@ -65,6 +65,7 @@ import numpy as np
 from . import __version__
 from . import angle_error, battery as batt, bounds, gears, latches as latch_mod, power
 from . import sensor as sensor_mod
+from . import export as _export  # noqa: F401  (registers how a result draws itself in a notebook)
 from . import simulation as sim
 from .counter import CounterSettings
 from .design import ActuatorDesign, MotionScenario
@@ -207,7 +208,10 @@ def build_latches(design: ActuatorDesign) -> latch_mod.QuadrantLatches:
 
 def build_counter(design: ActuatorDesign) -> CounterSettings:
     """The :class:`~turnkit.counter.CounterSettings` of a design."""
-    c = design.counter
+    return _counter_settings(design.counter)
+
+
+def _counter_settings(c) -> CounterSettings:
     try:
         return CounterSettings(width_bits=c.bits, signed=c.signed, overflow_policy=c.overflow,
                                ambiguous_policy=_AMBIGUOUS_POLICY[c.on_ambiguous])
@@ -217,7 +221,10 @@ def build_counter(design: ActuatorDesign) -> CounterSettings:
 
 def build_schedule(design: ActuatorDesign):
     """The :class:`~turnkit.schedule.FixedSchedule` or ``AdaptiveSchedule`` of a design."""
-    s = design.schedule
+    return _schedule_of(design.schedule)
+
+
+def _schedule_of(s):
     period_s = s.poll_period_ms / 1e3
     common = dict(wake_time_s=s.wake_time_us * 1e-6, settle_time_s=s.settle_time_us * 1e-6,
                   poll_time_s=s.poll_time_us * 1e-6)
@@ -434,11 +441,11 @@ def build_motion(sc: MotionScenario, train, base_dir: Path | None = None) -> tup
 # ---------------------------------------------------------------------------
 
 @lru_cache(maxsize=64)
-def _sensor_summary(sensor_design, stages: tuple, calibrated: bool):
+def _sensor_summary(sensor_design, calibrated: bool):
+    # Keyed on the sensor alone (its motor-side numbers do not depend on the gear train), so a sweep
+    # or Monte Carlo run that varies anything else fits the simulated calibration sweep once.
     sensor = _sensor_of(sensor_design)
-    train = _train_cached(stages)[0]
-    return angle_error.error_summary(sensor, calibrated, n=1440, gear_train=train, sweep_samples=360,
-                                     rng=np.random.default_rng(1))
+    return angle_error.error_summary(sensor, calibrated, n=1440, sweep_samples=360, rng=np.random.default_rng(1))
 
 
 def _sensor_of(sensor_design):
@@ -592,7 +599,7 @@ def _sweep_report(sensor_design, base_dir) -> tuple[list[Value], list[str], list
 
 
 # ---------------------------------------------------------------------------
-# the engine
+# small helpers of the stages
 # ---------------------------------------------------------------------------
 
 def _check(key, label, value, target, unit, comparison, advice="") -> Check:
@@ -615,7 +622,8 @@ def _design_text(design: ActuatorDesign) -> str:
     return dump_design(design)
 
 
-def _equations(keys) -> tuple[EquationText, ...]:
+@lru_cache(maxsize=64)
+def _equations(keys: tuple) -> tuple[EquationText, ...]:
     from .equations import EQUATIONS
 
     out = []
@@ -626,52 +634,138 @@ def _equations(keys) -> tuple[EquationText, ...]:
     return tuple(out)
 
 
-def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: bool = True,
-         simulate: bool = True) -> SizingResult:
-    """Size one actuator design.
+# ---------------------------------------------------------------------------
+# the stages
+# ---------------------------------------------------------------------------
+#
+# ``size()`` is a list of stages. Each stage is a function of the design (and
+# of earlier stages' outputs) returning a frozen object: what later stages need,
+# plus its own ``section`` of the result (values, checks, warnings, ...). The
+# result is the sections joined in stage order. A stage whose inputs are frozen
+# design sections is cached on them, so a sweep or a Monte Carlo run recomputes
+# only the stages whose inputs changed.
 
-    Parameters
+@dataclass(frozen=True, slots=True)
+class Section:
+    """One stage's part of a :class:`~turnkit.result.SizingResult`.
+
+    Attributes
     ----------
-    design : ActuatorDesign
-        The validated design (from :func:`turnkit.designfile.load_design` or Python).
-    base_dir : path, optional
-        Folder that relative trace and calibration-sweep paths are relative to
-        (the design file's folder).
-    curves : bool
-        Also compute the plot data (the dashboard and the HTML summary want it;
-        the command line without ``-o`` does not).
-    simulate : bool
-        Simulate each motion scenario through the counter and its schedule.
-
-    Returns
-    -------
-    SizingResult
-        Values with units, requirement checks with margins, simulated scenarios,
-        curves, equations, warnings and cautions.
-
-    Raises
-    ------
-    DesignValueError
-        When the design cannot be sized (e.g. no power consumers, unknown
-        battery key), naming the field.
+    values, checks, warnings, cautions, assumptions, scenarios, curves : tuple
+        As in :class:`~turnkit.result.SizingResult`, in the order the stage found them.
+    equation_keys : tuple of str
+        Keys of the equations (:mod:`turnkit.equations`) behind the values.
     """
-    stages = tuple(design.gear_train)
-    train, gear_notes = _train_cached(stages)
-    req = design.requirements
-    unit = train.output_unit
-    values: list[Value] = []
-    checks: list[Check] = []
-    warns: list[str] = list(gear_notes)
-    cautions: list[str] = list(GENERAL_CAUTIONS)
-    assumptions: list[tuple[str, str]] = []
-    eq_keys: list[str] = []
 
-    def add(key, label, value, unit_="", group="", equation="", note=""):
-        values.append(Value(key, label, value, unit_, group, equation, note))
+    values: tuple[Value, ...] = ()
+    checks: tuple[Check, ...] = ()
+    warnings: tuple[str, ...] = ()
+    cautions: tuple[str, ...] = ()
+    assumptions: tuple[tuple[str, str], ...] = ()
+    equation_keys: tuple[str, ...] = ()
+    scenarios: tuple[Scenario, ...] = ()
+    curves: tuple[Curve, ...] = ()
+
+
+class _SectionBuilder:
+    """Collects one stage's values, checks and notes, then freezes them into a :class:`Section`."""
+
+    __slots__ = ("values", "checks", "warnings", "cautions", "assumptions", "equation_keys")
+
+    def __init__(self):
+        self.values: list[Value] = []
+        self.checks: list[Check] = []
+        self.warnings: list[str] = []
+        self.cautions: list[str] = []
+        self.assumptions: list[tuple[str, str]] = []
+        self.equation_keys: list[str] = []
+
+    def add(self, key, label, value, unit_="", group="", equation="", note=""):
+        self.values.append(Value(key, label, value, unit_, group, equation, note))
         if equation:
-            eq_keys.append(equation)
+            self.equation_keys.append(equation)
 
-    # -- gear train --------------------------------------------------------
+    def done(self, **extra) -> Section:
+        return Section(values=tuple(self.values), checks=tuple(self.checks), warnings=tuple(self.warnings),
+                       cautions=tuple(self.cautions), assumptions=tuple(self.assumptions),
+                       equation_keys=tuple(self.equation_keys), **extra)
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class Mechanics:
+    """Mechanics stage: the gear train, its exact ratio, travel, backlash and back-drive.
+
+    Compared and hashed by identity: later stages' caches are keyed on it, and the stage
+    itself is cached on the gear stages, so equal trains give the same object.
+    """
+
+    section: Section
+    stages: tuple
+    train: gears.GearTrain
+    unit: str
+
+
+@dataclass(frozen=True, slots=True)
+class CounterRange:
+    """Counting stage, range part: the stroke in quarter-turns and the counter width that holds it."""
+
+    section: Section
+    settings: CounterSettings
+
+
+@dataclass(frozen=True, slots=True)
+class Sensing:
+    """Sensing stage: sensor errors, calibration, output resolution and accuracy, half-turn margin."""
+
+    section: Section
+    summary: Any
+    resolution_out: float
+    sweep_curve: Curve | None
+
+
+@dataclass(frozen=True, slots=True)
+class SpeedBounds:
+    """Counting stage, bounds part: the schedule, the counted speeds and the longest allowed poll period."""
+
+    section: Section
+    schedule: Any
+    guaranteed_rpm: float
+    out_speed: float
+    out_speed_unit: str
+    req_speed: float | None
+    required_rpm: float | None
+    max_period_s: float | None
+
+
+@dataclass(frozen=True, slots=True)
+class PowerLife:
+    """Power stage: the current budget, the battery and its life."""
+
+    section: Section
+    pack: Any
+    profile: power.CurrentProfile
+    budget: power.PowerBudget
+    sched_kw: dict
+    temperature_C: float
+    usable: float
+    life: float | None
+
+
+def mechanics_stage(design: ActuatorDesign) -> Mechanics:
+    """Mechanics: the gear train's exact ratio, direction, travel per motor turn, backlash and back-drive.
+
+    Cached on the design's gear stages.
+    """
+    return _mechanics(tuple(design.gear_train))
+
+
+@lru_cache(maxsize=256)
+def _mechanics(stages: tuple) -> Mechanics:
+    train, gear_notes = _train_cached(stages)
+    unit = train.output_unit
+    out = _SectionBuilder()
+    out.warnings.extend(gear_notes)
+    add = out.add
     ratio = train.ratio
     per_turn = train.travel_per_motor_turn
     add("ratio", "Overall reduction (motor turns per turn of the last rotary member)", str(ratio), "",
@@ -689,19 +783,35 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     add("can_backdrive", "Output can turn the motor", train.can_backdrive, "", "gear train")
     for line in train.backdrive_report():
         if "unknown" in line:
-            warns.append(line)
+            out.warnings.append(line)
     if train.can_backdrive:
-        cautions.append(_BACKDRIVE_CAUTION)
+        out.cautions.append(_BACKDRIVE_CAUTION)
     elif any(isinstance(s, (gears.WormStage, gears.LeadScrew)) for s in train.stages):
-        cautions.append(_CREEP_CAUTION)
+        out.cautions.append(_CREEP_CAUTION)
+    return Mechanics(out.done(), stages, train, unit)
 
-    stroke = req.stroke_mm if unit == "mm" else req.stroke_deg
-    other_stroke = req.stroke_deg if unit == "mm" else req.stroke_mm
+
+def counter_range_stage(design: ActuatorDesign, mech: Mechanics) -> CounterRange:
+    """Counting, range: motor turns and quarter-turns over the stroke, counter width needed and held.
+
+    Cached on the gear stages, the stroke and the ``[counter]`` section.
+    """
+    req = design.requirements
+    return _counter_range(mech, req.stroke_mm, req.stroke_deg, design.counter)
+
+
+@lru_cache(maxsize=256)
+def _counter_range(mech: Mechanics, stroke_mm, stroke_deg, counter_design) -> CounterRange:
+    train, unit = mech.train, mech.unit
+    out = _SectionBuilder()
+    add = out.add
+    stroke = stroke_mm if unit == "mm" else stroke_deg
+    other_stroke = stroke_deg if unit == "mm" else stroke_mm
     if other_stroke is not None:
         raise DesignValueError("requirements.stroke", other_stroke,
                                f"given in {unit} for this {'linear' if unit == 'mm' else 'rotary'} output",
                                unit="deg" if unit == "mm" else "mm")
-    settings = build_counter(design)
+    settings = _counter_settings(counter_design)
     quarter_turns_stroke = None
     if stroke is not None:
         motor_turns = train.motor_turns_for_stroke(stroke)
@@ -713,18 +823,31 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
         add("counter_bits_needed", "Counter width needed for the stroke", bits, "bit", "counter",
             equation="counter_bits")
     # Homed at zero at one end of the stroke: the travel up to the largest count.
-    counter_range = settings.max_count / 4 * float(per_turn)
+    counter_range = settings.max_count / 4 * float(train.travel_per_motor_turn)
     add("counter_bits", "Counter width", settings.width_bits, "bit", "counter")
     add("counter_range", "Output travel the counter can hold", float(counter_range), unit, "counter",
         note=f"{settings.max_count - settings.min_count + 1} quarter-turns, "
              f"{'signed' if settings.signed else 'unsigned'}, overflow: {settings.overflow_policy.value}")
     if stroke is not None:
-        checks.append(_check("counter_range", "Counter holds the whole stroke", float(counter_range), float(stroke),
-                            unit, ">=", advice=f"widen the counter to at least "
-                                               f"{_counter_bits_needed(quarter_turns_stroke, settings.signed)} bits"))
+        out.checks.append(_check("counter_range", "Counter holds the whole stroke", float(counter_range),
+                                 float(stroke), unit, ">=",
+                                 advice=f"widen the counter to at least "
+                                        f"{_counter_bits_needed(quarter_turns_stroke, settings.signed)} bits"))
+    return CounterRange(out.done(), settings)
 
-    # -- sensor and latches -------------------------------------------------
-    summary = _sensor_summary(design.sensor, stages, bool(design.sensor.calibrated))
+
+def sensing_stage(design: ActuatorDesign, mech: Mechanics, base_dir: str | Path | None = None) -> Sensing:
+    """Sensing: sensor angle errors (before or after calibration), a measured sweep's fit, output
+    resolution and accuracy, and the half-turn margin of the quadrant latches.
+
+    The sensor error analysis (with its simulated calibration fit) is cached on the ``[sensor]``
+    section alone, and a measured sweep's fit on its file's path, modification time and size.
+    """
+    req = design.requirements
+    train, unit = mech.train, mech.unit
+    out = _SectionBuilder()
+    add = out.add
+    summary = _sensor_summary(design.sensor, bool(design.sensor.calibrated))
     motor_peak = summary.peak_error_deg
     add("sensor_peak_error_deg", "Sensor angle error at the motor, peak"
         + (" (after calibration)" if design.sensor.calibrated else " (uncalibrated)"), motor_peak, "deg", "sensor")
@@ -736,9 +859,9 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     sweep_curve = None
     if design.sensor.sweep is not None:
         sweep_values, sweep_warns, sweep_assumptions, sweep_curve = _sweep_report(design.sensor, base_dir)
-        values.extend(sweep_values)
-        warns.extend(sweep_warns)
-        assumptions.extend(sweep_assumptions)
+        out.values.extend(sweep_values)
+        out.warnings.extend(sweep_warns)
+        out.assumptions.extend(sweep_assumptions)
     resolution_out = train.output_resolution(summary.resolution_deg)
     add("output_resolution", "Output resolution", resolution_out, unit, "sensor", equation="output_resolution")
     sensor_err_out = train.output_resolution(motor_peak)
@@ -747,37 +870,56 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
         note=f"sensor {sensor_err_out:.3g} {unit} + backlash {train.backlash_at_output():.3g} {unit}")
     target_res = req.output_resolution_mm if unit == "mm" else req.output_resolution_deg
     if target_res is not None:
-        need = float(ratio) * resolution_out / target_res
+        need = float(train.ratio) * resolution_out / target_res
         add("min_reduction_for_resolution", "Smallest reduction giving the required resolution", need, ":1",
             "gear train", equation="output_resolution",
             note="with this sensor and the same final stage; inverse of the resolution equation")
-        checks.append(_check("output_resolution", "Output resolution is fine enough", resolution_out, target_res,
-                            unit, "<=", advice=f"raise the reduction to at least {need:.4g}:1, or use a "
-                                               "quieter sensor or a finer ADC"))
+        out.checks.append(_check("output_resolution", "Output resolution is fine enough", resolution_out,
+                                 target_res, unit, "<=",
+                                 advice=f"raise the reduction to at least {need:.4g}:1, or use a "
+                                        "quieter sensor or a finer ADC"))
     target_acc = req.output_accuracy_mm if unit == "mm" else req.output_accuracy_deg
     if target_acc is not None:
         parts = "backlash" if train.backlash_at_output() > sensor_err_out else "sensor error"
-        checks.append(_check("output_accuracy", "Output accuracy is within the allowed error", accuracy_out,
-                            target_acc, unit, "<=",
-                            advice=f"the larger part is the {parts}: "
-                                   + ("reduce backlash (anti-backlash nut, preloaded stages)" if parts == "backlash"
-                                      else "calibrate the sensor or raise the reduction")))
+        out.checks.append(_check("output_accuracy", "Output accuracy is within the allowed error", accuracy_out,
+                                 target_acc, unit, "<=",
+                                 advice=f"the larger part is the {parts}: "
+                                        + ("reduce backlash (anti-backlash nut, preloaded stages)"
+                                           if parts == "backlash" else "calibrate the sensor or raise the reduction")))
 
     margin = latch_mod.half_turn_margin(build_latches(design), fine_error_deg=motor_peak)
     add("half_turn_margin_deg", "Half-turn margin of the quadrant latches", margin.margin_deg, "deg", "sensor",
         note="45 deg less latch tolerance, half the hysteresis, misalignment and sensor error")
-    checks.append(_check("half_turn_margin", "Latch tolerances and sensor error leave the half-turn decision safe",
-                         margin.consumed_deg, margin.available_deg, "deg", "<=",
-                         advice="tighten the latch switch-point tolerance, the hysteresis or the magnet alignment"))
+    out.checks.append(_check("half_turn_margin",
+                             "Latch tolerances and sensor error leave the half-turn decision safe",
+                             margin.consumed_deg, margin.available_deg, "deg", "<=",
+                             advice="tighten the latch switch-point tolerance, the hysteresis or the magnet "
+                                    "alignment"))
     if not margin.ok:
         zones = ", ".join(f"{a:.0f}-{b:.0f} deg" for a, b in margin.fail_zones_deg[:4])
-        warns.append(f"The half-turn decision can fail near {zones} of each motor turn.")
+        out.warnings.append(f"The half-turn decision can fail near {zones} of each motor turn.")
+    return Sensing(out.done(), summary, resolution_out, sweep_curve)
 
-    # -- schedule and speed bounds -------------------------------------------
-    schedule = build_schedule(design)
+
+def speed_bounds_stage(design: ActuatorDesign, mech: Mechanics) -> SpeedBounds:
+    """Counting, bounds: the poll schedule, the fastest motor speed always counted, the onset of silent
+    miscounts, and the longest poll period for the required back-drive speed.
+
+    Cached on the gear stages, the ``[schedule]`` section and the required back-drive speed.
+    """
+    req = design.requirements
+    return _speed_bounds(mech, design.schedule, req.backdrive_speed_mm_per_s, req.backdrive_speed_rpm)
+
+
+@lru_cache(maxsize=256)
+def _speed_bounds(mech: Mechanics, schedule_design, speed_mm_per_s, speed_rpm) -> SpeedBounds:
+    train, unit = mech.train, mech.unit
+    out = _SectionBuilder()
+    add = out.add
+    schedule = _schedule_of(schedule_design)
     guaranteed_rpm = bounds.schedule_speed_limit_rpm(schedule)
     silent_rpm = bounds.silent_error_speed_rpm(bounds.worst_interval_s(schedule))
-    add("poll_period_ms", "Poll period while asleep", design.schedule.poll_period_ms, "ms", "schedule")
+    add("poll_period_ms", "Poll period while asleep", schedule_design.poll_period_ms, "ms", "schedule")
     add("trackable_motor_speed_rpm", "Fastest motor speed always counted right while asleep", guaranteed_rpm,
         "rpm", "schedule", equation="max_trackable_speed")
     out_speed, out_speed_unit = output_speed_for_motor_rpm(guaranteed_rpm, train)
@@ -788,8 +930,8 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     awake_s = schedule.wake_time_s + schedule.settle_time_s + schedule.poll_time_s
     add("duty_cycle_percent", "Duty cycle (awake share while idle)", 100 * awake_s / schedule.poll_period_s, "%",
         "schedule", equation="duty_cycle")
-    req_speed = (req.backdrive_speed_mm_per_s if unit == "mm" else req.backdrive_speed_rpm)
-    wrong_speed = req.backdrive_speed_rpm if unit == "mm" else req.backdrive_speed_mm_per_s
+    req_speed = speed_mm_per_s if unit == "mm" else speed_rpm
+    wrong_speed = speed_rpm if unit == "mm" else speed_mm_per_s
     if wrong_speed is not None:
         raise DesignValueError("requirements.backdrive_speed", wrong_speed,
                                "given in mm/s for a linear output, rpm for a rotary one",
@@ -804,12 +946,21 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
             "schedule", equation="backdrive_motor_speed")
         add("max_poll_period_ms", "Longest poll period for the required back-drive speed", max_period_s * 1e3,
             "ms", "schedule", equation="max_poll_period")
-        checks.append(_check("backdrive_speed", "Counter follows the required back-drive speed while asleep",
-                            out_speed, req_speed, out_speed_unit, ">=",
-                            advice=f"poll at least every {max_period_s * 1e3:.4g} ms (with jitter included), "
-                                   "or lower the reduction"))
+        out.checks.append(_check("backdrive_speed", "Counter follows the required back-drive speed while asleep",
+                                 out_speed, req_speed, out_speed_unit, ">=",
+                                 advice=f"poll at least every {max_period_s * 1e3:.4g} ms (with jitter "
+                                        "included), or lower the reduction"))
+    return SpeedBounds(out.done(), schedule, guaranteed_rpm, out_speed, out_speed_unit, req_speed, required_rpm,
+                       max_period_s)
 
-    # -- power and battery ---------------------------------------------------
+
+def power_stage(design: ActuatorDesign, mech: Mechanics, speed: SpeedBounds) -> PowerLife:
+    """Power: the average current and its breakdown, the battery, its usable capacity and its life."""
+    req = design.requirements
+    train = mech.train
+    schedule = speed.schedule
+    out = _SectionBuilder()
+    add = out.add
     pack = build_battery(design)
     profile = build_profile(design, pack.nominal_voltage_V if pack is not None else None)
     motion_events = sum(sc.bursts_per_day or 0.0 for sc in design.motion if sc.kind == "bursts")
@@ -835,8 +986,8 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
         note=f"{budget.by_consumer()[budget.dominant_consumer]:.3g} uA of the average")
     add("dominant_state", "State that costs the most charge", budget.dominant_state, "", "power")
     if motion_events:
-        assumptions.append((f"Back-drive bursts: {motion_events:g} a day (from the motion scenarios) in the "
-                            "average current", "design file"))
+        out.assumptions.append((f"Back-drive bursts: {motion_events:g} a day (from the motion scenarios) in the "
+                                "average current", "design file"))
     temperature_C = design.battery.temperature_degC if design.battery is not None else 20.0
     if req.service_temperature_degC is not None:
         temperature_C = req.service_temperature_degC
@@ -845,7 +996,7 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     if pack is not None:
         usable = usable_fraction(pack, design.power.cutoff_voltage_V)
         if usable < 1.0:
-            assumptions.append((
+            out.assumptions.append((
                 f"The electronics stop at {design.power.cutoff_voltage_V:g} V, above the pack's rated end voltage "
                 f"{pack.cutoff_voltage_V:g} V: usable fraction {usable:.3g}, falling linearly from 1 at the "
                 "rated end voltage to 0 at the nominal voltage (a cautious stand-in for the discharge curve)",
@@ -863,118 +1014,219 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
         add("self_discharge_percent", "Share of the capacity lost to self-discharge",
             100 * est.lost_to_self_discharge_mAh / est.usable_capacity_mAh if est.usable_capacity_mAh else 0.0, "%",
             "battery")
-        warns.extend(est.warnings)
-        cautions.extend(c for c in est.cautions if c not in cautions)
-        assumptions.append((f"Battery data for {pack.cell.name}: typical values at low drain", "; ".join(
+        out.warnings.extend(est.warnings)
+        out.cautions.extend(est.cautions)
+        out.assumptions.append((f"Battery data for {pack.cell.name}: typical values at low drain", "; ".join(
             dict.fromkeys(src for _, src in pack.cell.sources)) or "user data"))
-        assumptions.append((f"Battery temperature {temperature_C:g} degC, linear self-discharge, "
-                            "8766 h per year", "(common practice)"))
-        if req.battery_life_years is not None:
-            advice = ""
-            try:
-                need_cap = float(batt.capacity_needed_mAh(budget.average_current_uA, req.battery_life_years, pack,
-                                                          temperature_C=temperature_C, usable_fraction=usable))
-                advice = f"a battery of at least {need_cap:.4g} mAh, or a lower average current"
-                if req_speed is not None and max_period_s > schedule.poll_period_s * 1.01:
-                    advice += (f"; polling only as often as the back-drive speed needs (every "
-                               f"{max_period_s * 1e3:.4g} ms) also saves charge")
-                add("capacity_needed_mAh", "Capacity needed for the required life", need_cap, "mAh", "battery",
-                    equation="capacity_for_life")
-                # Largest sleep current that still lasts the life: solve the life equation for the
-                # average current, then give the whole change to the time spent asleep.
-                asleep_share = budget.state_fractions()["asleep"]
-                tf = float(pack.temperature_factor(temperature_C))
-                c_nom = pack.capacity_mAh
-                allowed_uA = (c_nom * tf * usable - pack.self_discharge_per_year * c_nom * req.battery_life_years) \
-                    / (_HOURS_PER_YEAR * req.battery_life_years) * 1e3
-                sleep_now = profile.state_totals_uA()["asleep"]
-                if asleep_share > 0:
-                    max_sleep = sleep_now + (allowed_uA - budget.average_current_uA) / asleep_share
-                    add("max_sleep_current_uA", "Largest total sleep current that lasts the required life",
-                        max_sleep, "uA", "battery", equation="battery_life",
-                        note=("negative: even zero sleep current cannot make the life; the wake-ups alone cost "
-                              "too much") if max_sleep < 0 else f"now {sleep_now:.3g} uA")
-            except DesignValueError:
-                advice = (f"this chemistry cannot last {req.battery_life_years:g} years against its own "
-                          "self-discharge: choose another chemistry")
-            checks.append(_check("battery_life", "Battery lasts the required life", life, req.battery_life_years,
-                                "years", ">=", advice=advice))
+        out.assumptions.append((f"Battery temperature {temperature_C:g} degC, linear self-discharge, "
+                                "8766 h per year", "(common practice)"))
+    return PowerLife(out.done(), pack, profile, budget, sched_kw, temperature_C, usable, life)
+
+
+def advice_stage(design: ActuatorDesign, mech: Mechanics, speed: SpeedBounds, pw: PowerLife) -> Section:
+    """Checks and advice: battery life and quiescent budget checks with what would fix them, and whether any
+    poll period meets both the back-drive speed and the life (with how far each must move if none does)."""
+    req = design.requirements
+    train = mech.train
+    schedule, max_period_s, req_speed = speed.schedule, speed.max_period_s, speed.req_speed
+    pack, profile, budget, life = pw.pack, pw.profile, pw.budget, pw.life
+    temperature_C, usable = pw.temperature_C, pw.usable
+    out = _SectionBuilder()
+    add = out.add
+    if pack is not None and req.battery_life_years is not None:
+        advice = ""
+        try:
+            need_cap = float(batt.capacity_needed_mAh(budget.average_current_uA, req.battery_life_years, pack,
+                                                      temperature_C=temperature_C, usable_fraction=usable))
+            advice = f"a battery of at least {need_cap:.4g} mAh, or a lower average current"
+            if req_speed is not None and max_period_s > schedule.poll_period_s * 1.01:
+                advice += (f"; polling only as often as the back-drive speed needs (every "
+                           f"{max_period_s * 1e3:.4g} ms) also saves charge")
+            add("capacity_needed_mAh", "Capacity needed for the required life", need_cap, "mAh", "battery",
+                equation="capacity_for_life")
+            # Largest sleep current that still lasts the life: solve the life equation for the
+            # average current, then give the whole change to the time spent asleep.
+            asleep_share = budget.state_fractions()["asleep"]
+            tf = float(pack.temperature_factor(temperature_C))
+            c_nom = pack.capacity_mAh
+            allowed_uA = (c_nom * tf * usable - pack.self_discharge_per_year * c_nom * req.battery_life_years) \
+                / (_HOURS_PER_YEAR * req.battery_life_years) * 1e3
+            sleep_now = profile.state_totals_uA()["asleep"]
+            if asleep_share > 0:
+                max_sleep = sleep_now + (allowed_uA - budget.average_current_uA) / asleep_share
+                add("max_sleep_current_uA", "Largest total sleep current that lasts the required life",
+                    max_sleep, "uA", "battery", equation="battery_life",
+                    note=("negative: even zero sleep current cannot make the life; the wake-ups alone cost "
+                          "too much") if max_sleep < 0 else f"now {sleep_now:.3g} uA")
+        except DesignValueError:
+            advice = (f"this chemistry cannot last {req.battery_life_years:g} years against its own "
+                      "self-discharge: choose another chemistry")
+        out.checks.append(_check("battery_life", "Battery lasts the required life", life, req.battery_life_years,
+                                 "years", ">=", advice=advice))
     host = design.power.host_supply
     budget_uA = req.quiescent_budget_uA
     if budget_uA is None and host is not None:
         budget_uA = host.quiescent_budget_uA
     if budget_uA is not None:
-        checks.append(_check("quiescent_budget", "Average current within the quiescent budget",
-                            budget.average_current_uA, budget_uA, "uA", "<=",
-                            advice="poll less often or cut the sleep current"))
+        out.checks.append(_check("quiescent_budget", "Average current within the quiescent budget",
+                                 budget.average_current_uA, budget_uA, "uA", "<=",
+                                 advice="poll less often or cut the sleep current"))
 
-    # -- conflicts between speed and life --------------------------------------
+    # Conflicts between speed and life.
     if max_period_s is not None and life is not None and req.battery_life_years is not None:
         life_at_limit = float(batt.life_years(
-            pack, power.average_current_uA(profile, **{**sched_kw, "poll_period_s": max_period_s}),
+            pack, power.average_current_uA(profile, **{**pw.sched_kw, "poll_period_s": max_period_s}),
             temperature_C=temperature_C, usable_fraction=usable, warn=False))
         add("life_at_max_poll_period_years", "Battery life at the longest allowed poll period", life_at_limit,
             "years", "battery")
         if life_at_limit < req.battery_life_years:
-            warns.append(
+            out.warnings.append(
                 f"No poll period meets both requirements: polling every {max_period_s * 1e3:.4g} ms (the "
-                f"longest that follows {req_speed:g} {out_speed_unit}) lasts only {life_at_limit:.3g} years "
+                f"longest that follows {req_speed:g} {speed.out_speed_unit}) lasts only {life_at_limit:.3g} years "
                 f"against {req.battery_life_years:g} required.")
-            warns.extend(_relax_lines(profile, pack, schedule, required_rpm, req.battery_life_years, temperature_C,
-                                      train, usable))
+            out.warnings.extend(_relax_lines(profile, pack, schedule, speed.required_rpm, req.battery_life_years,
+                                             temperature_C, train, usable))
+    return out.done()
 
-    # -- motion scenarios ---------------------------------------------------------
-    scenarios: list[Scenario] = []
+
+def scenarios_stage(design: ActuatorDesign, mech: Mechanics, counter: CounterRange, speed: SpeedBounds,
+                    base_dir: str | Path | None = None) -> Section:
+    """Counting, scenarios: each motion scenario simulated through the counter on the design's schedule.
+
+    Each scenario's simulation is cached on the scenario, the gear stages, the schedule and the counter.
+    """
+    train, unit = mech.train, mech.unit
     base = str(Path(base_dir).resolve()) if base_dir is not None else None
-    if simulate:
-        for sc in design.motion:
-            result, peak = _simulate_scenario(sc, stages, schedule, settings, base)
-            _, err = result.output_error(train)
-            max_err = float(np.max(np.abs(err))) if np.size(err) else 0.0
-            note = ""
-            if result.silent_error_count:
-                note = "silent miscounts: the count is wrong with no error flagged"
-            elif result.ambiguous_count:
-                note = "ambiguous steps flagged: position no longer trusted, re-homing needed"
-            elif peak > guaranteed_rpm:
-                note = "faster than the guaranteed bound at times, but counted right in this run"
-            scenarios.append(Scenario(
-                name=sc.name, kind=sc.kind, duration_s=result.duration_s, peak_motor_speed_rpm=peak,
-                polls=result.poll_count, final_count_error_qt=result.final_count_error,
-                ambiguous_count=result.ambiguous_count, silent_error_count=result.silent_error_count,
-                overflow_count=result.overflow_count, max_output_error=max_err, output_unit=unit, note=note))
+    scenarios: list[Scenario] = []
+    for sc in design.motion:
+        result, peak = _simulate_scenario(sc, mech.stages, speed.schedule, counter.settings, base)
+        _, err = result.output_error(train)
+        max_err = float(np.max(np.abs(err))) if np.size(err) else 0.0
+        note = ""
+        if result.silent_error_count:
+            note = "silent miscounts: the count is wrong with no error flagged"
+        elif result.ambiguous_count:
+            note = "ambiguous steps flagged: position no longer trusted, re-homing needed"
+        elif peak > speed.guaranteed_rpm:
+            note = "faster than the guaranteed bound at times, but counted right in this run"
+        scenarios.append(Scenario(
+            name=sc.name, kind=sc.kind, duration_s=result.duration_s, peak_motor_speed_rpm=peak,
+            polls=result.poll_count, final_count_error_qt=result.final_count_error,
+            ambiguous_count=result.ambiguous_count, silent_error_count=result.silent_error_count,
+            overflow_count=result.overflow_count, max_output_error=max_err, output_unit=unit, note=note))
+    return Section(scenarios=tuple(scenarios))
 
-    # -- curves ----------------------------------------------------------------
-    curve_list: list[Curve] = []
-    if curves:
-        curve_list.extend(_curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
-                                  max_period_s, required_rpm, req_speed, out_speed_unit, temperature_C,
-                                  guaranteed_rpm, resolution_out, base, usable))
-        if sweep_curve is not None:
-            curve_list.append(sweep_curve)
 
-    eq_keys.extend(["max_trackable_speed", "max_poll_period"])
-    text = _design_text(design)
+def curves_stage(design: ActuatorDesign, mech: Mechanics, counter: CounterRange, sensing: Sensing,
+                 speed: SpeedBounds, pw: PowerLife, base_dir: str | Path | None = None) -> Section:
+    """Plot data: life (or current) against poll period, a simulated back-drive event and its output error,
+    resolution and back-drive speed against reduction, current over a poll cycle, sensor error over a turn,
+    and a measured calibration sweep's fit."""
+    base = str(Path(base_dir).resolve()) if base_dir is not None else None
+    out = _curves(design, mech.train, speed.schedule, counter.settings, pw.profile, pw.pack, sensing.summary,
+                  pw.sched_kw, speed.max_period_s, speed.required_rpm, speed.req_speed, speed.out_speed_unit,
+                  pw.temperature_C, speed.guaranteed_rpm, sensing.resolution_out, base, pw.usable)
+    if sensing.sweep_curve is not None:
+        out.append(sensing.sweep_curve)
+    return Section(curves=tuple(out))
+
+
+def assemble(design: ActuatorDesign, unit: str, sections, *, identify: bool = True) -> SizingResult:
+    """Join the stages' sections, in order, into one :class:`~turnkit.result.SizingResult`.
+
+    Parameters
+    ----------
+    design : ActuatorDesign
+        The design sized.
+    unit : str
+        Output unit of its gear train, ``"mm"`` or ``"deg"``.
+    sections : iterable of Section
+        The stages' sections in the order they appear in the result.
+    identify : bool
+        Fill ``design_hash`` and ``inputs`` from the design's canonical file text. Sweeps and Monte
+        Carlo runs, which read only values, checks and scenarios, pass False and skip writing and
+        reading that text (``design_hash`` is then empty and ``inputs`` an empty dict).
+    """
+    sections = tuple(sections)
+    join = lambda name: tuple(x for s in sections for x in getattr(s, name))  # noqa: E731
+    eq_keys = join("equation_keys") + ("max_trackable_speed", "max_poll_period")
+    digest, inputs = _identity(design) if identify else ("", {})
     return SizingResult(
         design_name=design.name,
-        design_hash=hashlib.sha256(text.encode()).hexdigest(),
+        design_hash=digest,
         turnkit_version=__version__,
         output_unit=unit,
-        values=tuple(values),
-        checks=tuple(checks),
-        scenarios=tuple(scenarios),
-        curves=tuple(curve_list),
-        equations=_equations(dict.fromkeys(eq_keys)),
-        warnings=tuple(dict.fromkeys(warns)),
-        cautions=tuple(dict.fromkeys(cautions)),
-        assumptions=tuple(assumptions) + (
-            ("Guaranteed counting: less than a quarter-turn of the motor between two polls, any phase",
-             "2-bit Gray code, one bit changes per step: F. Gray, US patent 2,632,058 (1953)"),
-            ("Gear ratios are exact fractions of tooth counts; lengths are taken at their decimal value",
-             "Shigley's Mechanical Engineering Design, ch. 13"),
-        ),
-        inputs=tomllib.loads(text),
+        values=join("values"),
+        checks=join("checks"),
+        scenarios=join("scenarios"),
+        curves=join("curves"),
+        equations=_equations(tuple(dict.fromkeys(eq_keys))),
+        warnings=tuple(dict.fromkeys(join("warnings"))),
+        cautions=tuple(dict.fromkeys(GENERAL_CAUTIONS + join("cautions"))),
+        assumptions=join("assumptions") + _ASSUMPTIONS,
+        inputs=inputs,
     )
+
+
+_ASSUMPTIONS = (
+    ("Guaranteed counting: less than a quarter-turn of the motor between two polls, any phase",
+     "2-bit Gray code, one bit changes per step: F. Gray, US patent 2,632,058 (1953)"),
+    ("Gear ratios are exact fractions of tooth counts; lengths are taken at their decimal value",
+     "Shigley's Mechanical Engineering Design, ch. 13"),
+)
+
+
+def _identity(design: ActuatorDesign) -> tuple[str, dict]:
+    text = _design_text(design)
+    return hashlib.sha256(text.encode()).hexdigest(), tomllib.loads(text)
+
+
+# ---------------------------------------------------------------------------
+# the engine
+# ---------------------------------------------------------------------------
+
+def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: bool = True,
+         simulate: bool = True, identify: bool = True) -> SizingResult:
+    """Size one actuator design.
+
+    Parameters
+    ----------
+    design : ActuatorDesign
+        The validated design (from :func:`turnkit.designfile.load_design` or Python).
+    base_dir : path, optional
+        Folder that relative trace and calibration-sweep paths are relative to
+        (the design file's folder).
+    curves : bool
+        Also compute the plot data (the dashboard and the HTML summary want it;
+        the command line without ``-o`` does not).
+    simulate : bool
+        Simulate each motion scenario through the counter and its schedule.
+    identify : bool
+        Fill the result's ``design_hash`` and ``inputs`` (see :func:`assemble`).
+
+    Returns
+    -------
+    SizingResult
+        Values with units, requirement checks with margins, simulated scenarios,
+        curves, equations, warnings and cautions.
+
+    Raises
+    ------
+    DesignValueError
+        When the design cannot be sized (e.g. no power consumers, unknown
+        battery key), naming the field.
+    """
+    mech = mechanics_stage(design)
+    counter = counter_range_stage(design, mech)
+    sensing = sensing_stage(design, mech, base_dir)
+    speed = speed_bounds_stage(design, mech)
+    pw = power_stage(design, mech, speed)
+    advice = advice_stage(design, mech, speed, pw)
+    scenarios = scenarios_stage(design, mech, counter, speed, base_dir) if simulate else Section()
+    plots = curves_stage(design, mech, counter, sensing, speed, pw, base_dir) if curves else Section()
+    return assemble(design, mech.unit,
+                    (mech.section, counter.section, sensing.section, speed.section, pw.section, advice, scenarios,
+                     plots), identify=identify)
 
 
 def _relax_lines(profile, pack, schedule, required_rpm, life_years, temperature_C, train,
