@@ -824,10 +824,13 @@ class GearTrain:
     """
 
     stages: tuple = field(default=())
+    # The exact ratio, worked out once: sizing reads it many times and Fraction arithmetic is slow.
+    _ratio: Fraction | None = field(default=None, init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
         stages = tuple(self.stages)
         object.__setattr__(self, "stages", stages)
+        object.__setattr__(self, "_ratio", None)
         if not stages:
             raise DesignValueError("gear_train", [], "at least one stage")
         for i, stage in enumerate(stages):
@@ -882,9 +885,12 @@ class GearTrain:
     def ratio(self) -> Fraction:
         """Overall reduction of the rotary stages: motor turns per turn of the
         last rotary member (the output, or the screw / pinion). Exact."""
-        r = Fraction(1)
-        for s in self.rotary_stages:
-            r *= s.reduction
+        r = self._ratio
+        if r is None:
+            r = Fraction(1)
+            for s in self.rotary_stages:
+                r *= s.reduction
+            object.__setattr__(self, "_ratio", r)
         return r
 
     @property
