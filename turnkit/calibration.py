@@ -343,9 +343,22 @@ def _fit_once(xs, ys, w):
     return _conic_to_params(coef), 0
 
 
+def _median(a: np.ndarray) -> float:
+    """``np.median`` of a 1-D float array, the same value, without its general-purpose overhead
+    (the reweighting loop takes two medians per iteration)."""
+    n = a.size
+    if n == 0:
+        return np.median(a)
+    k = n // 2
+    part = np.partition(a, [k - 1, k, n - 1] if n % 2 == 0 and n > 1 else [k, n - 1])
+    if np.isnan(part[-1]):
+        return np.nan
+    return (part[k - 1] + part[k]) / 2.0 if n % 2 == 0 else part[k]
+
+
 def _weights(rho, tuning, huber):
-    centred = rho - np.median(rho)
-    sigma = 1.4826 * float(np.median(np.abs(centred)))
+    centred = rho - _median(rho)
+    sigma = 1.4826 * float(_median(np.abs(centred)))
     if sigma < 1e-12:
         # Noise-free data: nothing to reweight.
         return None
