@@ -621,8 +621,8 @@ class CombinedMotion(MotionProfile):
     """The sum of several profiles (angles add; intervals are merged)."""
 
     parts: tuple
-    # Per part: (first, last) time its angle changes, or None when it never moves; worked out
-    # on first use (the parts are immutable).
+    # Per part, worked out on first use (the parts are immutable): the first and last time its
+    # angle changes (+inf for a part that never moves) and its resting angle before and after.
     _spans: tuple | None = field(init=False, repr=False, compare=False, default=None)
 
     def __post_init__(self):
@@ -638,11 +638,19 @@ class CombinedMotion(MotionProfile):
     def _part_spans(self) -> tuple:
         spans = self._spans
         if spans is None:
-            out = []
+            lo, hi, before, after = [], [], [], []
             for p in self.parts:
                 a, b = p.motion_intervals()
-                out.append((float(np.min(a)), float(np.max(b))) if np.size(a) else None)
-            spans = tuple(out)
+                if np.size(a):
+                    first, last = float(np.min(a)), float(np.max(b))
+                    # Any time outside the span gives the resting value; take the nearest ones.
+                    rest = np.array([np.nextafter(first, -np.inf), np.nextafter(last, np.inf)])
+                    v = p.angle_deg_sorted(rest)
+                    lo.append(first), hi.append(last), before.append(v[0]), after.append(v[1])
+                else:
+                    v = p.angle_deg_sorted(np.zeros(1))[0]
+                    lo.append(np.inf), hi.append(np.inf), before.append(v), after.append(v)
+            spans = (np.array(lo), np.array(hi), tuple(before), tuple(after))
             object.__setattr__(self, "_spans", spans)
         return spans
 
@@ -655,40 +663,53 @@ class CombinedMotion(MotionProfile):
 
     def angle_deg_sorted(self, t_s):
         # Each part is worked out only at the times inside its span of motion; before and after
-        # that span it is at rest, so its value there (taken at one such time) is added as a
-        # constant. The parts are added in order, element by element, exactly as the plain sum
-        # does, so the result is the same to the last bit.
+        # that span it is at rest, so its resting value is added as a constant. The parts are
+        # added in order, element by element, exactly as the plain sum does, so the result is
+        # the same to the last bit.
         t = np.asarray(t_s, dtype=np.float64)
         n = t.size
         if t.ndim != 1 or n < 2:
             return self.angle_deg(t)
+        lo, hi, before, after = self._part_spans()
+        first = np.searchsorted(t, lo, side="left").tolist()
+        last = np.searchsorted(t, hi, side="right").tolist()
+        # While every part so far is at rest over all of t, the running sum is one number (the
+        # same additions in the same order as for each element of an array).
+        uniform = None
         total = None
         exact_zero_skip = False
-        for p, span in zip(self.parts, self._part_spans()):
-            if span is None:
-                i0 = i1 = n
-            else:
-                i0 = int(np.searchsorted(t, span[0], side="left"))
-                i1 = int(np.searchsorted(t, span[1], side="right"))
+        for k, p in enumerate(self.parts):
+            i0, i1 = first[k], last[k]
+            if total is None and (i0 == n or i1 == 0):
+                rest = float(before[k] if i0 == n else after[k])
+                uniform = rest if uniform is None else uniform + rest
+                continue
             pieces = []
             if i0 > 0:
-                pieces.append((0, min(i0, n), p.angle_deg_sorted(t[:1])[0]))
+                pieces.append((0, i0, before[k]))
             if i1 > i0:
                 pieces.append((i0, i1, p.angle_deg_sorted(t[i0:i1])))
-            if i1 < n and i1 >= i0:
-                pieces.append((i1, n, p.angle_deg_sorted(t[-1:])[0]))
+            if i1 < n:
+                pieces.append((i1, n, after[k]))
             if total is None:
-                total = np.empty(n)
-                for a, b, v in pieces:
-                    total[a:b] = v
+                if uniform is None:
+                    total = np.empty(n)
+                    for a, b, v in pieces:
+                        total[a:b] = v
+                else:
+                    total = np.full(n, uniform)
+                    for a, b, v in pieces:
+                        total[a:b] += v
                 # x + 0.0 changes x only when x is -0.0, and a sum is -0.0 only when every term
-                # is: with no -0.0 after the first part, adding a zero constant can be skipped.
+                # is: with no -0.0 in the running sum, adding a zero constant can be skipped.
                 exact_zero_skip = not np.any((total == 0.0) & np.signbit(total))
                 continue
             for a, b, v in pieces:
                 if np.ndim(v) == 0 and v == 0.0 and (exact_zero_skip or np.signbit(v)):
                     continue
                 total[a:b] += v
+        if total is None:
+            total = np.full(n, uniform)
         return total
 
     def motion_intervals(self):
