@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import ast
+import subprocess
+import sys
 from dataclasses import replace
 from pathlib import Path
 
@@ -99,3 +101,15 @@ def test_result_module_imports_no_view_so_result_and_export_form_no_cycle():
 def test_sized_result_draws_itself_in_a_notebook(demo):
     html = size(demo, base_dir=DEMO, curves=False, simulate=False)._repr_html_()
     assert html.lstrip().startswith('<div class="turnkit-summary">')
+
+
+def test_reading_and_sizing_the_demos_loads_neither_sympy_nor_pint():
+    # The crane's requirements conflict, so its sizing also gives the relax advice.
+    code = ("import sys\nfrom pathlib import Path\nfrom turnkit.designfile import load_design\n"
+            "from turnkit.sizing import size\n"
+            "load_design(Path('turnkit/templates/design.toml'))\n"
+            "warns = [w for f in sorted(Path('demo').glob('*.toml')) for w in size(load_design(f), base_dir='demo').warnings]\n"
+            "assert any(w.startswith('To make both fit') for w in warns), warns\n"
+            "print('sympy' in sys.modules, 'pint' in sys.modules)")
+    out = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "False False"

@@ -1,11 +1,14 @@
 """The sizing engine: one call from a design to every number, check and curve.
 
 :func:`size` turns an :class:`~turnkit.design.ActuatorDesign` into an
-immutable :class:`~turnkit.result.SizingResult`. It builds the numeric models
-(gear train, angle sensor, latches, counter, schedule, power, battery and the
-motion scenarios), runs them, compares the results with the requirements and
-collects plot data for the views. It computes nothing on its own that a model
-module already does: the arithmetic here is unit bookkeeping and comparison.
+immutable :class:`~turnkit.result.SizingResult` through a list of named stages:
+mechanics, counter range, sensing, speed bounds, power, advice, scenarios and
+curves. Each stage builds its numeric models (gear train, angle sensor,
+latches, counter, schedule, power, battery, motion), runs them, compares the
+results with the requirements and returns its own :class:`Section` of the
+result; :func:`assemble` joins the sections in order. It computes nothing on
+its own that a model module already does: the arithmetic here is unit
+bookkeeping and comparison.
 
 Result keys (``result.value(key)``) carry their unit in the name; the curve
 keys are ``"life_vs_poll_period"`` (or ``"current_vs_poll_period"`` on a host
@@ -460,10 +463,20 @@ def _sensor_of(sensor_design):
         raise _relabel(exc, "sensor") from None
 
 
+@dataclass(frozen=True, slots=True)
+class _Kinematics:
+    """All a motion scenario reads of a gear train (not its backlash or efficiency)."""
+
+    travel_per_motor_turn: Any
+    direction: int
+    output_unit: str
+
+
 @lru_cache(maxsize=512)
-def _simulate_scenario(sc: MotionScenario, stages: tuple, schedule, settings, base_dir: str | None):
-    train = _train_cached(stages)[0]
-    prof, duration, peak = build_motion(sc, train, Path(base_dir) if base_dir else None)
+def _simulate_scenario(sc: MotionScenario, kinematics: _Kinematics, schedule, settings, base_dir: str | None):
+    # Keyed on the train's kinematics, so that points differing only in backlash or efficiency
+    # (a tolerance run) share one simulation (and one read of a trace file).
+    prof, duration, peak = build_motion(sc, kinematics, Path(base_dir) if base_dir else None)
     result = sim.simulate(prof, schedule, duration, settings)
     return result, peak
 
@@ -703,6 +716,7 @@ class Mechanics:
     stages: tuple
     train: gears.GearTrain
     unit: str
+    kinematics: _Kinematics
 
 
 @dataclass(frozen=True, slots=True)
@@ -788,7 +802,8 @@ def _mechanics(stages: tuple) -> Mechanics:
         out.cautions.append(_BACKDRIVE_CAUTION)
     elif any(isinstance(s, (gears.WormStage, gears.LeadScrew)) for s in train.stages):
         out.cautions.append(_CREEP_CAUTION)
-    return Mechanics(out.done(), stages, train, unit)
+    return Mechanics(out.done(), stages, train, unit,
+                     _Kinematics(train.travel_per_motor_turn, train.direction, train.output_unit))
 
 
 def counter_range_stage(design: ActuatorDesign, mech: Mechanics) -> CounterRange:
@@ -865,9 +880,10 @@ def sensing_stage(design: ActuatorDesign, mech: Mechanics, base_dir: str | Path 
     resolution_out = train.output_resolution(summary.resolution_deg)
     add("output_resolution", "Output resolution", resolution_out, unit, "sensor", equation="output_resolution")
     sensor_err_out = train.output_resolution(motor_peak)
-    accuracy_out = sensor_err_out + train.backlash_at_output()
+    backlash_out = train.backlash_at_output()
+    accuracy_out = sensor_err_out + backlash_out
     add("output_accuracy", "Output accuracy (sensor peak error + backlash)", accuracy_out, unit, "sensor",
-        note=f"sensor {sensor_err_out:.3g} {unit} + backlash {train.backlash_at_output():.3g} {unit}")
+        note=f"sensor {sensor_err_out:.3g} {unit} + backlash {backlash_out:.3g} {unit}")
     target_res = req.output_resolution_mm if unit == "mm" else req.output_resolution_deg
     if target_res is not None:
         need = float(train.ratio) * resolution_out / target_res
@@ -880,7 +896,7 @@ def sensing_stage(design: ActuatorDesign, mech: Mechanics, base_dir: str | Path 
                                         "quieter sensor or a finer ADC"))
     target_acc = req.output_accuracy_mm if unit == "mm" else req.output_accuracy_deg
     if target_acc is not None:
-        parts = "backlash" if train.backlash_at_output() > sensor_err_out else "sensor error"
+        parts = "backlash" if backlash_out > sensor_err_out else "sensor error"
         out.checks.append(_check("output_accuracy", "Output accuracy is within the allowed error", accuracy_out,
                                  target_acc, unit, "<=",
                                  advice=f"the larger part is the {parts}: "
@@ -905,15 +921,15 @@ def speed_bounds_stage(design: ActuatorDesign, mech: Mechanics) -> SpeedBounds:
     """Counting, bounds: the poll schedule, the fastest motor speed always counted, the onset of silent
     miscounts, and the longest poll period for the required back-drive speed.
 
-    Cached on the gear stages, the ``[schedule]`` section and the required back-drive speed.
+    Cached on the train's kinematics, the ``[schedule]`` section and the required back-drive speed.
     """
     req = design.requirements
-    return _speed_bounds(mech, design.schedule, req.backdrive_speed_mm_per_s, req.backdrive_speed_rpm)
+    return _speed_bounds(mech.kinematics, design.schedule, req.backdrive_speed_mm_per_s, req.backdrive_speed_rpm)
 
 
 @lru_cache(maxsize=256)
-def _speed_bounds(mech: Mechanics, schedule_design, speed_mm_per_s, speed_rpm) -> SpeedBounds:
-    train, unit = mech.train, mech.unit
+def _speed_bounds(train: _Kinematics, schedule_design, speed_mm_per_s, speed_rpm) -> SpeedBounds:
+    unit = train.output_unit
     out = _SectionBuilder()
     add = out.add
     schedule = _schedule_of(schedule_design)
@@ -1093,13 +1109,14 @@ def scenarios_stage(design: ActuatorDesign, mech: Mechanics, counter: CounterRan
                     base_dir: str | Path | None = None) -> Section:
     """Counting, scenarios: each motion scenario simulated through the counter on the design's schedule.
 
-    Each scenario's simulation is cached on the scenario, the gear stages, the schedule and the counter.
+    Each scenario's simulation is cached on the scenario, the train's kinematics (travel per motor
+    turn, direction, output unit), the schedule and the counter.
     """
     train, unit = mech.train, mech.unit
     base = str(Path(base_dir).resolve()) if base_dir is not None else None
     scenarios: list[Scenario] = []
     for sc in design.motion:
-        result, peak = _simulate_scenario(sc, mech.stages, speed.schedule, counter.settings, base)
+        result, peak = _simulate_scenario(sc, mech.kinematics, speed.schedule, counter.settings, base)
         _, err = result.output_error(train)
         max_err = float(np.max(np.abs(err))) if np.size(err) else 0.0
         note = ""
