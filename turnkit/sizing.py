@@ -61,6 +61,7 @@ from dataclasses import dataclass, replace
 from fractions import Fraction
 from functools import lru_cache
 from pathlib import Path
+from types import MappingProxyType
 from typing import Any
 
 import numpy as np
@@ -271,7 +272,10 @@ def build_battery(design: ActuatorDesign):
 
 def build_profile(design: ActuatorDesign, supply_voltage_V: float | None = None) -> power.CurrentProfile:
     """The :class:`~turnkit.power.CurrentProfile` of a design's consumers."""
-    consumers = design.power.consumers
+    return _profile_of(design.power.consumers, supply_voltage_V)
+
+
+def _profile_of(consumers: tuple, supply_voltage_V: float | None) -> power.CurrentProfile:
     if not consumers:
         raise DesignValueError("power.consumers", [], "at least one consumer with its currents",
                                hint="add a [[power.consumers]] table with asleep, waking, polling and tracking")
@@ -759,10 +763,11 @@ class PowerLife:
     pack: Any
     profile: power.CurrentProfile
     budget: power.PowerBudget
-    sched_kw: dict
+    sched_kw: MappingProxyType
     temperature_C: float
     usable: float
     life: float | None
+    budget_key: tuple
 
 
 def mechanics_stage(design: ActuatorDesign) -> Mechanics:
@@ -978,21 +983,11 @@ def power_stage(design: ActuatorDesign, mech: Mechanics, speed: SpeedBounds) -> 
     out = _SectionBuilder()
     add = out.add
     pack = build_battery(design)
-    profile = build_profile(design, pack.nominal_voltage_V if pack is not None else None)
-    motion_events = sum(sc.bursts_per_day or 0.0 for sc in design.motion if sc.kind == "bursts")
-    motion_fraction = 0.0
-    for sc in design.motion:
-        if sc.kind == "bursts":
-            sp = abs(_scenario_motor(sc, train, "speed")[0] or 0.0)
-            dist = _scenario_motor(sc, train, "distance")[0] or 0.0
-            if sp > 0:
-                motion_fraction += sc.bursts_per_day * 0.75 * dist / (sp * 6.0) / 86400.0
-    sched_kw = dict(poll_period_s=schedule.poll_period_s, wake_time_s=schedule.wake_time_s,
-                    settle_time_s=schedule.settle_time_s, poll_time_s=schedule.poll_time_s,
-                    motion_fraction=min(motion_fraction, 0.5), motion_events_per_day=motion_events)
-    if isinstance(schedule, AdaptiveSchedule):
-        sched_kw.update(fast_period_s=schedule.fast_period_s, hold_s=schedule.hold_s)
-    budget = power.budget_from_schedule(profile, **sched_kw)
+    # The current budget does not depend on the battery's capacity or chemistry (only on its
+    # voltage), so tolerance runs over the battery reuse it.
+    budget_key = (design.power.consumers, design.motion, schedule, mech.kinematics,
+                  pack.nominal_voltage_V if pack is not None else None)
+    profile, sched_kw, budget, motion_events = _current_budget(*budget_key)
     add("average_current_uA", "Average current", budget.average_current_uA, "uA", "power",
         equation="average_current")
     add("charge_per_year_mAh", "Charge drawn per year", budget.charge_per_year_mAh, "mAh", "power")
@@ -1036,7 +1031,35 @@ def power_stage(design: ActuatorDesign, mech: Mechanics, speed: SpeedBounds) -> 
             dict.fromkeys(src for _, src in pack.cell.sources)) or "user data"))
         out.assumptions.append((f"Battery temperature {temperature_C:g} degC, linear self-discharge, "
                                 "8766 h per year", "(common practice)"))
-    return PowerLife(out.done(), pack, profile, budget, sched_kw, temperature_C, usable, life)
+    return PowerLife(out.done(), pack, profile, budget, sched_kw, temperature_C, usable, life, budget_key)
+
+
+@lru_cache(maxsize=256)
+def _current_budget(consumers: tuple, motion: tuple, schedule, train: _Kinematics, supply_voltage_V):
+    """(profile, schedule keywords, budget, bursts a day) of the consumers on a schedule."""
+    profile = _profile_of(consumers, supply_voltage_V)
+    motion_events = sum(sc.bursts_per_day or 0.0 for sc in motion if sc.kind == "bursts")
+    motion_fraction = 0.0
+    for sc in motion:
+        if sc.kind == "bursts":
+            sp = abs(_scenario_motor(sc, train, "speed")[0] or 0.0)
+            dist = _scenario_motor(sc, train, "distance")[0] or 0.0
+            if sp > 0:
+                motion_fraction += sc.bursts_per_day * 0.75 * dist / (sp * 6.0) / 86400.0
+    sched_kw = dict(poll_period_s=schedule.poll_period_s, wake_time_s=schedule.wake_time_s,
+                    settle_time_s=schedule.settle_time_s, poll_time_s=schedule.poll_time_s,
+                    motion_fraction=min(motion_fraction, 0.5), motion_events_per_day=motion_events)
+    if isinstance(schedule, AdaptiveSchedule):
+        sched_kw.update(fast_period_s=schedule.fast_period_s, hold_s=schedule.hold_s)
+    # Read-only: the cached keywords are shared by every result that reuses them.
+    return profile, MappingProxyType(sched_kw), power.budget_from_schedule(profile, **sched_kw), motion_events
+
+
+@lru_cache(maxsize=256)
+def _average_current_at(budget_key: tuple, poll_period_s: float) -> float:
+    """Average current (uA) of the same consumers and schedule at another poll period."""
+    profile, sched_kw, _, _ = _current_budget(*budget_key)
+    return power.average_current_uA(profile, **{**sched_kw, "poll_period_s": poll_period_s})
 
 
 def advice_stage(design: ActuatorDesign, mech: Mechanics, speed: SpeedBounds, pw: PowerLife) -> Section:
@@ -1090,9 +1113,8 @@ def advice_stage(design: ActuatorDesign, mech: Mechanics, speed: SpeedBounds, pw
 
     # Conflicts between speed and life.
     if max_period_s is not None and life is not None and req.battery_life_years is not None:
-        life_at_limit = float(batt.life_years(
-            pack, power.average_current_uA(profile, **{**pw.sched_kw, "poll_period_s": max_period_s}),
-            temperature_C=temperature_C, usable_fraction=usable, warn=False))
+        life_at_limit = float(batt.life_years(pack, _average_current_at(pw.budget_key, max_period_s),
+                                              temperature_C=temperature_C, usable_fraction=usable, warn=False))
         add("life_at_max_poll_period_years", "Battery life at the longest allowed poll period", life_at_limit,
             "years", "battery")
         if life_at_limit < req.battery_life_years:
