@@ -568,7 +568,11 @@ class EquationSolution:
 
 
 def _is_real_number(value) -> bool:
-    # numbers.Real covers int, float and numpy scalars; bool is excluded on purpose.
+    # numbers.Real covers int, float and numpy scalars; bool is excluded on purpose. Plain floats and
+    # ints (the common case) are answered before the slower abstract-class check.
+    kind = type(value)
+    if kind is float or kind is int:
+        return True
     return isinstance(value, numbers.Real) and not isinstance(value, bool)
 
 
