@@ -317,11 +317,14 @@ def error_summary(sensor: BridgeSensor, calibrated: bool, n: int = 3600, *, gear
         if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < 16:
             raise DesignValueError(field, value, "an integer >= 16")
     angle = np.linspace(0.0, 360.0, int(n), endpoint=False)
-    before = angle_error_deg(sensor, angle)
+    # The noiseless signals once, decoded as they are and through the correction
+    # (what angle_error_deg does, without working the signals out twice).
+    x, y = sensor.signals(angle, noise=False)
+    before = wrap_mech_deg(decode_deg(x, y) - angle)
     sweep_angle = np.linspace(0.0, 360.0, int(sweep_samples), endpoint=False)
     sx, sy = sensor.signals(sweep_angle, rng=make_rng(rng))
     correction = fit_sweep(sx, sy).correction
-    after = angle_error_deg(sensor, angle, correction=correction)
+    after = wrap_mech_deg(decode_deg(*correction.apply(x, y)) - angle)
     chosen = after if calibrated else before
     peak = float(np.max(np.abs(chosen)))
     rms = float(np.sqrt(np.mean(chosen ** 2)))

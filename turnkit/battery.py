@@ -376,8 +376,12 @@ class Cell:
         Accepts a float or an array. Raises :class:`DesignValueError` outside
         the operating range of the curve.
         """
-        t = np.asarray(temperature_C, dtype=float)
         low, high = self.operating_range_C
+        if type(temperature_C) in (float, int) and low <= temperature_C <= high:
+            # One plain number inside the range (what sizing asks): no array checks needed.
+            temps, factors = zip(*self.temperature_curve)
+            return float(np.interp(float(temperature_C), temps, factors))
+        t = np.asarray(temperature_C, dtype=float)
         if not np.all(np.isfinite(t)) or np.any(t < low) or np.any(t > high):
             bad = t[(t < low) | (t > high) | ~np.isfinite(t)] if t.ndim else t
             raise DesignValueError(

@@ -159,11 +159,17 @@ class CalibrationFit:
     iterations: int
 
 
-def _conic_lstsq(xs, ys, w):
-    m = np.column_stack((xs * xs, ys * ys, xs * ys, xs, ys))
+def _conic_lstsq(xs, ys, w, m=None):
+    if m is None:
+        m = _conic_matrix(xs, ys)
     sw = np.sqrt(w)
     coef, _, rank, sv = np.linalg.lstsq(m * sw[:, None], sw, rcond=None)
     return coef, rank, sv
+
+
+def _conic_matrix(xs, ys):
+    """Columns x², y², xy, x, y of the conic fit (the same for every reweighting pass)."""
+    return np.column_stack((xs * xs, ys * ys, xs * ys, xs, ys))
 
 
 def _conic_to_params(coef):
@@ -187,10 +193,21 @@ def _conic_to_params(coef):
 
 
 def _corrected_polar(params, xs, ys):
+    u1, u2 = _corrected_xy(params, xs, ys)
+    return np.hypot(u1, u2) / params[2] - 1.0, np.arctan2(u2, u1)
+
+
+def _corrected_radius(params, xs, ys):
+    """The radial part of :func:`_corrected_polar` alone (the reweighting passes need no angle)."""
+    u1, u2 = _corrected_xy(params, xs, ys)
+    return np.hypot(u1, u2) / params[2] - 1.0
+
+
+def _corrected_xy(params, xs, ys):
     p, q, ax, ay, d = params
     u1 = xs - p
     u2 = ((ax / ay) * (ys - q) - u1 * math.sin(d)) / math.cos(d)
-    return np.hypot(u1, u2) / ax - 1.0, np.arctan2(u2, u1)
+    return u1, u2
 
 
 def _largest_gap_deg(phase_rad) -> float:
@@ -276,7 +293,8 @@ def fit_sweep(x_mV, y_mV, *, angle_deg=None, robust: bool = True,
                                     "check wiring and magnet")
 
     weights = np.ones(n)
-    params, iterations = _fit_once(xs, ys, weights)
+    conic = _conic_matrix(xs, ys)
+    params, iterations = _fit_once(xs, ys, weights, conic)
     if params is None:
         gap = _largest_gap_deg(np.arctan2(ys, xs))
         if gap > max_gap_deg:
@@ -285,11 +303,11 @@ def fit_sweep(x_mV, y_mV, *, angle_deg=None, robust: bool = True,
     if robust:
         for tuning, count in ((_HUBER_C, 10), (_TUKEY_C, 40)):
             for _ in range(count):
-                rho, _ = _corrected_polar(params, xs, ys)
+                rho = _corrected_radius(params, xs, ys)
                 new_w = _weights(rho, tuning, huber=tuning == _HUBER_C)
                 if new_w is None:
                     break
-                new_params, _ = _fit_once(xs, ys, new_w)
+                new_params, _ = _fit_once(xs, ys, new_w, conic)
                 iterations += 1
                 if new_params is None:
                     break
@@ -336,16 +354,29 @@ def fit_sweep(x_mV, y_mV, *, angle_deg=None, robust: bool = True,
     )
 
 
-def _fit_once(xs, ys, w):
-    coef, rank, _ = _conic_lstsq(xs, ys, w)
+def _fit_once(xs, ys, w, m=None):
+    coef, rank, _ = _conic_lstsq(xs, ys, w, m)
     if rank < 5:
         return None, 0
     return _conic_to_params(coef), 0
 
 
+def _median(a: np.ndarray) -> float:
+    """``np.median`` of a 1-D float array, the same value, without its general-purpose overhead
+    (the reweighting loop takes two medians per iteration)."""
+    n = a.size
+    if n == 0:
+        return np.median(a)
+    k = n // 2
+    part = np.partition(a, [k - 1, k, n - 1] if n % 2 == 0 and n > 1 else [k, n - 1])
+    if np.isnan(part[-1]):
+        return np.nan
+    return (part[k - 1] + part[k]) / 2.0 if n % 2 == 0 else part[k]
+
+
 def _weights(rho, tuning, huber):
-    centred = rho - np.median(rho)
-    sigma = 1.4826 * float(np.median(np.abs(centred)))
+    centred = rho - _median(rho)
+    sigma = 1.4826 * float(_median(np.abs(centred)))
     if sigma < 1e-12:
         # Noise-free data: nothing to reweight.
         return None

@@ -418,7 +418,7 @@ class _Reader:
         return {spec.attr_for(unit): value}
 
     def fraction(self, raw: Any, where: str) -> float:
-        from .units import angle_power, parse_quantity
+        from .units import angle_power, parse_quantity, quick_fraction
 
         if isinstance(raw, bool):
             raise self.error(where, f"{_short(raw)} is not a fraction; expected a number such as 0.02 or '2 %'")
@@ -426,6 +426,9 @@ class _Reader:
             return float(raw)
         if not isinstance(raw, str):
             raise self.error(where, f"{_short(raw)} is not a fraction; expected a number such as 0.02 or '2 %'")
+        quick = quick_fraction(raw)
+        if quick is not None:
+            return quick
         try:
             q = parse_quantity(raw, where)
         except DesignValueError as exc:
@@ -453,8 +456,12 @@ def _convert_quantity(raw: str, units: tuple[str, ...]) -> tuple:
 
     Cached because pint's parser dominates the time to read a design file.
     """
-    from .units import parse_quantity, same_kind
+    from .units import parse_quantity, quick_quantity, same_kind
 
+    quick = quick_quantity(raw, units, d.UNIT_DIMENSIONS)
+    if quick is not None:
+        # A common unit read without building the pint registry; same value as below.
+        return ("ok",) + quick
     try:
         q = parse_quantity(raw, "")
     except DesignValueError as exc:

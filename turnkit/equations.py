@@ -63,6 +63,8 @@ __all__ = [
     "max_sleep_current_for_life_uA",
     "min_capacity_for_life_mAh",
     "relax_advice",
+    "CLOSED_FORMS",
+    "solve_closed",
 ]
 
 #: Hours in a year of 365.25 days, the year used by every life figure.
@@ -583,7 +585,11 @@ class EquationSolution:
 
 
 def _is_real_number(value) -> bool:
-    # numbers.Real covers int, float and numpy scalars; bool is excluded on purpose.
+    # numbers.Real covers int, float and numpy scalars; bool is excluded on purpose. Plain floats and
+    # ints (the common case) are answered before the slower abstract-class check.
+    kind = type(value)
+    if kind is float or kind is int:
+        return True
     return isinstance(value, numbers.Real) and not isinstance(value, bool)
 
 
@@ -1142,6 +1148,60 @@ def _pct(current: float, needed: float) -> float:
     return abs(needed - current) / current * 100.0 if current else math.inf
 
 
+#: Closed forms of the solves :func:`relax_advice` needs: unknown -> (equations, function of the
+#: knowns). Written out once from sympy's solutions of the registry equations, in the order of
+#: operations of their lambdified form (so they give the same floats), so that sizing gives its
+#: advice without sympy; tests/test_closed_forms.py checks each against ``sympy.solve``.
+CLOSED_FORMS = MappingProxyType({
+    "T_max": (("max_poll_period",),
+              lambda n_motor_rpm, w_q=90.0, m=0.0, j=0.0: w_q*(1 - m)/(6*n_motor_rpm*(1 + 2*j))),
+    "I_avg": (("usable_capacity", "battery_life"),
+              lambda C_nom, L, k_T, s, u: (1/8766)*C_nom*(-L*s + k_T*u)/L),
+    "T": (("average_current",), lambda I_avg, I_awake, I_sleep, t_awake: t_awake*(I_awake - I_sleep)/(I_avg - I_sleep)),
+    "L": (("battery_life",), lambda C_nom, C_use, I_avg, s: C_use/(C_nom*s + 8766*I_avg)),
+    "C_nom": (("capacity_for_life",), lambda I_avg, L, k_T, s, u: -8766*I_avg*L/(L*s - k_T*u)),
+})
+
+
+def solve_closed(unknown: str, **knowns: float) -> float:
+    """Value of ``unknown`` from its closed form in :data:`CLOSED_FORMS` (no sympy).
+
+    Same value and the same refusals as :func:`solve_for` for those unknowns and knowns.
+
+    Parameters
+    ----------
+    unknown : str
+        A key of :data:`CLOSED_FORMS`.
+    **knowns : float
+        The knowns, by symbol name, in the units of :data:`SYMBOLS`.
+
+    Returns
+    -------
+    float
+        ``unknown`` in its model unit.
+
+    Raises
+    ------
+    DesignValueError
+        When a known or the result is out of its symbol's range (no feasible design).
+    """
+    keys, form = CLOSED_FORMS[unknown]
+    checked = _validate_knowns(knowns)
+    try:
+        value = float(form(**checked))
+    except (ZeroDivisionError, OverflowError, ValueError):
+        value = math.nan
+    info = SYMBOLS[unknown]
+    if not _check_domain(info.domain, value):
+        given = ", ".join(f"{n} = {_format_number(checked[n])} {_unit_of(n)}".rstrip() for n in sorted(checked))
+        raise DesignValueError(
+            unknown, value, f"{info.allowed} ({info.description})", unit=_unit_of(info.name),
+            hint=f"No feasible design: the requested value {unknown} comes out of range from "
+                 f"{', '.join(keys)} with {given}. Change one of these inputs",
+        )
+    return value
+
+
 def relax_advice(*, backdrive_motor_speed_rpm: float, life_years: float, capacity_mAh: float,
                  sleep_current_uA: float, awake_current_uA: float, awake_time_s: float,
                  temperature_derating: float = 1.0, usable_fraction: float = 1.0,
@@ -1197,13 +1257,13 @@ def relax_advice(*, backdrive_motor_speed_rpm: float, life_years: float, capacit
     battery = {"C_nom": c, "k_T": b.k_T, "u": b.u, "s": b.s}
     geometry = {"w_q": _require("narrowest_quadrant_deg", narrowest_quadrant_deg, "positive", "deg"),
                 "j": _require("jitter", jitter, "fraction"), "m": _require("margin", margin, "fraction")}
-    t_hi = solve_for("T_max", n_motor_rpm=n, **geometry)
+    t_hi = solve_closed("T_max", n_motor_rpm=n, **geometry)
     # Average current the life allows; none at all when self-discharge alone empties the cell.
     margin = b.k_T * b.u - b.s * b.life_years
-    i_max = solve_for("I_avg", L=b.life_years, **battery) if margin > 0 else 0.0
+    i_max = solve_closed("I_avg", L=b.life_years, **battery) if margin > 0 else 0.0
     wake_charge = t_a * (i_a - i_s)  # mA*s above the sleep current, per poll
     if i_max > i_s and wake_charge > 0:
-        t_life = solve_for("T", I_avg=i_max, I_sleep=i_s, I_awake=i_a, t_awake=t_a)
+        t_life = solve_closed("T", I_avg=i_max, I_sleep=i_s, I_awake=i_a, t_awake=t_a)
     elif i_max >= i_s and wake_charge == 0:
         t_life = 0.0
     else:
@@ -1237,7 +1297,7 @@ def relax_advice(*, backdrive_motor_speed_rpm: float, life_years: float, capacit
     # Average current at the longest period the speed allows.
     if t_hi >= t_a:
         i_at_hi = i_s + t_a / t_hi * (i_a - i_s)
-        life_new = solve_for("L", I_avg=i_at_hi, C_use=c * b.k_T * b.u, C_nom=c, s=b.s)
+        life_new = solve_closed("L", I_avg=i_at_hi, C_use=c * b.k_T * b.u, C_nom=c, s=b.s)
         options.append(RelaxOption("life", b.life_years, life_new, "year", _pct(b.life_years, life_new), True,
                                    f"Accept a life of {life_new:.4g} years instead of {b.life_years:g}."))
         # 3. Sleep current, everything else held, at T = t_hi.
@@ -1267,7 +1327,7 @@ def relax_advice(*, backdrive_motor_speed_rpm: float, life_years: float, capacit
                 "Cutting the wake-up charge alone does not help: the sleep current alone exceeds the budget."))
         # 5. Capacity.
         if margin > 0:
-            c_new = solve_for("C_nom", I_avg=i_at_hi, L=b.life_years, k_T=b.k_T, u=b.u, s=b.s)
+            c_new = solve_closed("C_nom", I_avg=i_at_hi, L=b.life_years, k_T=b.k_T, u=b.u, s=b.s)
             options.append(RelaxOption("capacity", c, c_new, "mAh", _pct(c, c_new), True,
                                        f"Use a battery of at least {c_new:.4g} mAh nominal, from {c:.4g} mAh, "
                                        f"polling every {t_hi * 1e3:.4g} ms."))

@@ -404,7 +404,8 @@ def _evaluate(task: _Task) -> _Chunk:
         try:
             with _TRAIN_LOCK:
                 build_train(design)
-            result = size(design, base_dir=task.base_dir, curves=False, simulate=task.simulate)
+            result = size(design, base_dir=task.base_dir, curves=False, simulate=task.simulate,
+                          identify=False)
         except DesignValueError as exc:
             reasons[j] = str(exc)
             continue

@@ -37,7 +37,7 @@ from typing import Any
 import numpy as np
 
 from .errors import DesignValueError
-from .result import Check, SizingResult, Value, _fmt, duration_text, micro_sign
+from .result import Check, SizingResult, Value, _fmt, duration_text, micro_sign, register_view
 
 __all__ = [
     "FORMAT",
@@ -601,3 +601,11 @@ def _atomic_write(path: Path, data: bytes, overwrite: bool) -> None:
     finally:
         if temp.exists():
             temp.unlink()
+
+
+def _notebook_html(result: SizingResult) -> str:
+    return to_html(result, standalone=False)
+
+
+# A result shown in a notebook draws itself as the summary fragment.
+register_view("text/html", _notebook_html)

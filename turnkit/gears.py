@@ -35,6 +35,7 @@ import math
 import warnings
 from dataclasses import dataclass, field, fields, replace
 from fractions import Fraction
+from functools import lru_cache
 from typing import Any, ClassVar, Iterable, Mapping, Union
 
 import numpy as np
@@ -321,6 +322,16 @@ class InternalPair(ExternalPair):
 _MEMBERS = ("sun", "ring", "carrier")
 
 
+@lru_cache(maxsize=1024)
+def _planetary_output_speed(sun_teeth: int, ring_teeth: int, input_member: str, output_member: str) -> Fraction:
+    """Output speed per unit input speed of a planetary set (exact; cached: Fraction arithmetic is slow)."""
+    # Willis relation as a linear form a*w_s + b*w_r + c*w_c = 0.
+    k = Fraction(ring_teeth, sun_teeth)
+    coef = {"sun": Fraction(1), "ring": k, "carrier": -(1 + k)}
+    # held member at rest, input at unit speed: solve for the output.
+    return -coef[input_member] / coef[output_member]
+
+
 @dataclass(frozen=True, slots=True)
 class PlanetaryStage:
     """A simple planetary stage with one member held.
@@ -392,11 +403,7 @@ class PlanetaryStage:
                     f"by {self.planets} planets; they cannot be spaced equally", TurnkitWarning, stacklevel=3)
 
     def _output_speed(self) -> Fraction:
-        # Willis relation as a linear form a*w_s + b*w_r + c*w_c = 0.
-        k = Fraction(self.ring_teeth, self.sun_teeth)
-        coef = {"sun": Fraction(1), "ring": k, "carrier": -(1 + k)}
-        # held member at rest, input at unit speed: solve for the output.
-        return -coef[self.input_member] / coef[self.output_member]
+        return _planetary_output_speed(self.sun_teeth, self.ring_teeth, self.input_member, self.output_member)
 
     @property
     def reduction(self) -> Fraction:
@@ -889,10 +896,13 @@ class GearTrain:
     """
 
     stages: tuple = field(default=())
+    # The exact ratio, worked out once: sizing reads it many times and Fraction arithmetic is slow.
+    _ratio: Fraction | None = field(default=None, init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
         stages = tuple(self.stages)
         object.__setattr__(self, "stages", stages)
+        object.__setattr__(self, "_ratio", None)
         if not stages:
             raise DesignValueError("gear_train", [], "at least one stage")
         for i, stage in enumerate(stages):
@@ -947,9 +957,12 @@ class GearTrain:
     def ratio(self) -> Fraction:
         """Overall reduction of the rotary stages: motor turns per turn of the
         last rotary member (the output, or the screw / pinion). Exact."""
-        r = Fraction(1)
-        for s in self.rotary_stages:
-            r *= s.reduction
+        r = self._ratio
+        if r is None:
+            r = Fraction(1)
+            for s in self.rotary_stages:
+                r *= s.reduction
+            object.__setattr__(self, "_ratio", r)
         return r
 
     @property

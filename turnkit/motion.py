@@ -593,6 +593,26 @@ class RecordedTrace(MotionProfile):
         v0, v1 = self.values[i], self.values[i + 1]
         return self._angles[i] + v0 * dt + 0.5 * (v1 - v0) / h * dt * dt
 
+    def angle_deg_sorted(self, t_s):
+        # At rest before the first sample and after the last: fill those stretches with the
+        # value the general formula gives there (the same for every such time) and work out
+        # only the times inside the recording.
+        t = np.asarray(t_s, dtype=np.float64)
+        if t.ndim != 1 or t.size < 2:
+            return self.angle_deg(t)
+        i0 = int(np.searchsorted(t, self.times_s[0], side="left"))
+        i1 = int(np.searchsorted(t, self.times_s[-1], side="right"))
+        if i0 == 0 and i1 == t.size:
+            return self.angle_deg(t)
+        out = np.empty_like(t)
+        if i0:
+            out[:i0] = self.angle_deg(t[:1])[0]
+        if i1 < t.size:
+            out[i1:] = self.angle_deg(t[-1:])[0]
+        if i1 > i0:
+            out[i0:i1] = self.angle_deg(t[i0:i1])
+        return out
+
     def motion_intervals(self):
         return np.array([self.times_s[0]]), np.array([self.times_s[-1]])
 
@@ -605,6 +625,9 @@ class CombinedMotion(MotionProfile):
     """The sum of several profiles (angles add; intervals are merged)."""
 
     parts: tuple
+    # Per part, worked out on first use (the parts are immutable): the first and last time its
+    # angle changes (+inf for a part that never moves) and its resting angle before and after.
+    _spans: tuple | None = field(init=False, repr=False, compare=False, default=None)
 
     def __post_init__(self):
         parts = tuple(self.parts)
@@ -614,6 +637,26 @@ class CombinedMotion(MotionProfile):
         for p in parts:
             flat.extend(p.parts if isinstance(p, CombinedMotion) else (p,))
         object.__setattr__(self, "parts", tuple(flat))
+        object.__setattr__(self, "_spans", None)
+
+    def _part_spans(self) -> tuple:
+        spans = self._spans
+        if spans is None:
+            lo, hi, before, after = [], [], [], []
+            for p in self.parts:
+                a, b = p.motion_intervals()
+                if np.size(a):
+                    first, last = float(np.min(a)), float(np.max(b))
+                    # Any time outside the span gives the resting value; take the nearest ones.
+                    rest = np.array([np.nextafter(first, -np.inf), np.nextafter(last, np.inf)])
+                    v = p.angle_deg_sorted(rest)
+                    lo.append(first), hi.append(last), before.append(v[0]), after.append(v[1])
+                else:
+                    v = p.angle_deg_sorted(np.zeros(1))[0]
+                    lo.append(np.inf), hi.append(np.inf), before.append(v), after.append(v)
+            spans = (np.array(lo), np.array(hi), tuple(before), tuple(after))
+            object.__setattr__(self, "_spans", spans)
+        return spans
 
     def angle_deg(self, t_s):
         t = np.asarray(t_s, dtype=np.float64)
@@ -623,10 +666,54 @@ class CombinedMotion(MotionProfile):
         return total
 
     def angle_deg_sorted(self, t_s):
+        # Each part is worked out only at the times inside its span of motion; before and after
+        # that span it is at rest, so its resting value is added as a constant. The parts are
+        # added in order, element by element, exactly as the plain sum does, so the result is
+        # the same to the last bit.
         t = np.asarray(t_s, dtype=np.float64)
-        total = self.parts[0].angle_deg_sorted(t)
-        for p in self.parts[1:]:
-            total = total + p.angle_deg_sorted(t)
+        n = t.size
+        if t.ndim != 1 or n < 2:
+            return self.angle_deg(t)
+        lo, hi, before, after = self._part_spans()
+        first = np.searchsorted(t, lo, side="left").tolist()
+        last = np.searchsorted(t, hi, side="right").tolist()
+        # While every part so far is at rest over all of t, the running sum is one number (the
+        # same additions in the same order as for each element of an array).
+        uniform = None
+        total = None
+        exact_zero_skip = False
+        for k, p in enumerate(self.parts):
+            i0, i1 = first[k], last[k]
+            if total is None and (i0 == n or i1 == 0):
+                rest = float(before[k] if i0 == n else after[k])
+                uniform = rest if uniform is None else uniform + rest
+                continue
+            pieces = []
+            if i0 > 0:
+                pieces.append((0, i0, before[k]))
+            if i1 > i0:
+                pieces.append((i0, i1, p.angle_deg_sorted(t[i0:i1])))
+            if i1 < n:
+                pieces.append((i1, n, after[k]))
+            if total is None:
+                if uniform is None:
+                    total = np.empty(n)
+                    for a, b, v in pieces:
+                        total[a:b] = v
+                else:
+                    total = np.full(n, uniform)
+                    for a, b, v in pieces:
+                        total[a:b] += v
+                # x + 0.0 changes x only when x is -0.0, and a sum is -0.0 only when every term
+                # is: with no -0.0 in the running sum, adding a zero constant can be skipped.
+                exact_zero_skip = not np.any((total == 0.0) & np.signbit(total))
+                continue
+            for a, b, v in pieces:
+                if np.ndim(v) == 0 and v == 0.0 and (exact_zero_skip or np.signbit(v)):
+                    continue
+                total[a:b] += v
+        if total is None:
+            total = np.full(n, uniform)
         return total
 
     def motion_intervals(self):

@@ -21,7 +21,7 @@ from __future__ import annotations
 import math
 import re
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Callable
 
 import numpy as np
 
@@ -38,6 +38,7 @@ __all__ = [
     "relative_margin",
     "micro_sign",
     "duration_text",
+    "register_view",
 ]
 
 
@@ -322,10 +323,11 @@ class SizingResult:
                 return c
         raise KeyError(f"no curve {key!r}; known: {', '.join(c.key for c in self.curves)}")
 
-    def _repr_html_(self) -> str:
-        from .export import to_html
-
-        return to_html(self, standalone=False)
+    def _repr_html_(self) -> str | None:
+        # The view is registered by turnkit.export (imported by the sizing engine), so this
+        # data module depends on no view. None lets a notebook fall back to the plain repr.
+        view = _VIEWS.get("text/html")
+        return view(self) if view is not None else None
 
 
 # "u" as the micro prefix of a unit: after a digit, a digit and a space, or an opening bracket or
@@ -385,3 +387,20 @@ def duration_text(seconds: float, digits: int = 4) -> str:
         return _fmt(s, digits)
     text = _fmt(s / scale, digits)
     return f"{text} {unit[:-1] if text == '1' and unit.endswith('s') and unit != 's' else unit}"
+
+
+#: Views that draw a :class:`SizingResult`, by MIME type (see :func:`register_view`).
+_VIEWS: dict[str, Callable[[SizingResult], str]] = {}
+
+
+def register_view(mime_type: str, view: Callable[[SizingResult], str]) -> None:
+    """Register the function that draws a result as ``mime_type`` (e.g. ``"text/html"`` for notebooks).
+
+    Parameters
+    ----------
+    mime_type : str
+        The MIME type the view produces.
+    view : callable
+        Takes a :class:`SizingResult`, returns its text in that type.
+    """
+    _VIEWS[mime_type] = view

@@ -1,11 +1,14 @@
 """The sizing engine: one call from a design to every number, check and curve.
 
 :func:`size` turns an :class:`~turnkit.design.ActuatorDesign` into an
-immutable :class:`~turnkit.result.SizingResult`. It builds the numeric models
-(gear train, angle sensor, latches, counter, schedule, power, battery and the
-motion scenarios), runs them, compares the results with the requirements and
-collects plot data for the views. It computes nothing on its own that a model
-module already does: the arithmetic here is unit bookkeeping and comparison.
+immutable :class:`~turnkit.result.SizingResult` through a list of named stages:
+mechanics, counter range, sensing, speed bounds, power, advice, scenarios and
+curves. Each stage builds its numeric models (gear train, angle sensor,
+latches, counter, schedule, power, battery, motion), runs them, compares the
+results with the requirements and returns its own :class:`Section` of the
+result; :func:`assemble` joins the sections in order. It computes nothing on
+its own that a model module already does: the arithmetic here is unit
+bookkeeping and comparison.
 
 Result keys (``result.value(key)``) carry their unit in the name; the curve
 keys are ``"life_vs_poll_period"`` (or ``"current_vs_poll_period"`` on a host
@@ -59,6 +62,7 @@ from dataclasses import dataclass, replace
 from fractions import Fraction
 from functools import lru_cache
 from pathlib import Path
+from types import MappingProxyType
 from typing import Any
 
 import numpy as np
@@ -66,6 +70,7 @@ import numpy as np
 from . import __version__
 from . import angle_error, battery as batt, counting, gears, latches as latch_mod, power
 from . import sensor as sensor_mod
+from . import export as _export  # noqa: F401  (registers how a result draws itself in a notebook)
 from . import simulation as sim
 from .counter import CounterSettings
 from .design import ActuatorDesign, MotionScenario
@@ -205,7 +210,10 @@ def build_latches(design: ActuatorDesign) -> latch_mod.QuadrantLatches:
 
 def build_counter(design: ActuatorDesign) -> CounterSettings:
     """The :class:`~turnkit.counter.CounterSettings` of a design."""
-    c = design.counter
+    return _counter_settings(design.counter)
+
+
+def _counter_settings(c) -> CounterSettings:
     try:
         return CounterSettings(width_bits=c.bits, signed=c.signed, overflow_policy=c.overflow,
                                ambiguous_policy=_AMBIGUOUS_POLICY[c.on_ambiguous])
@@ -215,7 +223,10 @@ def build_counter(design: ActuatorDesign) -> CounterSettings:
 
 def build_schedule(design: ActuatorDesign):
     """The :class:`~turnkit.schedule.FixedSchedule` or ``AdaptiveSchedule`` of a design."""
-    s = design.schedule
+    return _schedule_of(design.schedule)
+
+
+def _schedule_of(s):
     period_s = s.poll_period_ms / 1e3
     common = dict(wake_time_s=s.wake_time_us * 1e-6, settle_time_s=s.settle_time_us * 1e-6,
                   poll_time_s=s.poll_time_us * 1e-6)
@@ -260,7 +271,10 @@ def build_battery(design: ActuatorDesign):
 
 def build_profile(design: ActuatorDesign, supply_voltage_V: float | None = None) -> power.CurrentProfile:
     """The :class:`~turnkit.power.CurrentProfile` of a design's consumers."""
-    consumers = design.power.consumers
+    return _profile_of(design.power.consumers, supply_voltage_V)
+
+
+def _profile_of(consumers: tuple, supply_voltage_V: float | None) -> power.CurrentProfile:
     if not consumers:
         raise DesignValueError("power.consumers", [], "at least one consumer with its currents",
                                hint="add a [[power.consumers]] table with asleep, waking, polling and tracking")
@@ -441,11 +455,11 @@ def build_motion(sc: MotionScenario, train, base_dir: Path | None = None) -> tup
 # ---------------------------------------------------------------------------
 
 @lru_cache(maxsize=64)
-def _sensor_summary(sensor_design, stages: tuple, calibrated: bool):
+def _sensor_summary(sensor_design, calibrated: bool):
+    # Keyed on the sensor alone (its motor-side numbers do not depend on the gear train), so a sweep
+    # or Monte Carlo run that varies anything else fits the simulated calibration sweep once.
     sensor = _sensor_of(sensor_design)
-    train = _train_cached(stages)[0]
-    return angle_error.error_summary(sensor, calibrated, n=1440, gear_train=train, sweep_samples=360,
-                                     rng=np.random.default_rng(1))
+    return angle_error.error_summary(sensor, calibrated, n=1440, sweep_samples=360, rng=np.random.default_rng(1))
 
 
 def _sensor_of(sensor_design):
@@ -460,11 +474,21 @@ def _sensor_of(sensor_design):
         raise _relabel(exc, "sensor") from None
 
 
+@dataclass(frozen=True, slots=True)
+class _Kinematics:
+    """All a motion scenario reads of a gear train (not its backlash or efficiency)."""
+
+    travel_per_motor_turn: Any
+    direction: int
+    output_unit: str
+
+
 @lru_cache(maxsize=512)
-def _simulate_scenario(sc: MotionScenario, stages: tuple, schedule, settings, base_dir: str | None,
+def _simulate_scenario(sc: MotionScenario, kinematics: _Kinematics, schedule, settings, base_dir: str | None,
                        edges: tuple | None = None):
-    train = _train_cached(stages)[0]
-    prof, duration, peak = build_motion(sc, train, Path(base_dir) if base_dir else None)
+    # Keyed on the train's kinematics, so that points differing only in backlash or efficiency
+    # (a tolerance run) share one simulation (and one read of a trace file).
+    prof, duration, peak = build_motion(sc, kinematics, Path(base_dir) if base_dir else None)
     result = sim.simulate(prof, schedule, duration, settings, edge_shifts_deg=edges)
     return result, peak
 
@@ -600,7 +624,7 @@ def _sweep_report(sensor_design, base_dir) -> tuple[list[Value], list[str], list
 
 
 # ---------------------------------------------------------------------------
-# the engine
+# small helpers of the stages
 # ---------------------------------------------------------------------------
 
 def _check(key, label, value, target, unit, comparison, advice="") -> Check:
@@ -623,7 +647,8 @@ def _design_text(design: ActuatorDesign) -> str:
     return dump_design(design)
 
 
-def _equations(keys) -> tuple[EquationText, ...]:
+@lru_cache(maxsize=64)
+def _equations(keys: tuple) -> tuple[EquationText, ...]:
     from .equations import EQUATIONS
 
     out = []
@@ -634,52 +659,148 @@ def _equations(keys) -> tuple[EquationText, ...]:
     return tuple(out)
 
 
-def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: bool = True,
-         simulate: bool = True) -> SizingResult:
-    """Size one actuator design.
+# ---------------------------------------------------------------------------
+# the stages
+# ---------------------------------------------------------------------------
+#
+# ``size()`` is a list of stages. Each stage is a function of the design (and
+# of earlier stages' outputs) returning a frozen object: what later stages need,
+# plus its own ``section`` of the result (values, checks, warnings, ...). The
+# result is the sections joined in stage order. A stage whose inputs are frozen
+# design sections is cached on them, so a sweep or a Monte Carlo run recomputes
+# only the stages whose inputs changed.
 
-    Parameters
+@dataclass(frozen=True, slots=True)
+class Section:
+    """One stage's part of a :class:`~turnkit.result.SizingResult`.
+
+    Attributes
     ----------
-    design : ActuatorDesign
-        The validated design (from :func:`turnkit.designfile.load_design` or Python).
-    base_dir : path, optional
-        Folder that relative trace and calibration-sweep paths are relative to
-        (the design file's folder).
-    curves : bool
-        Also compute the plot data (the dashboard and the HTML summary want it;
-        the command line without ``-o`` does not).
-    simulate : bool
-        Simulate each motion scenario through the counter and its schedule.
-
-    Returns
-    -------
-    SizingResult
-        Values with units, requirement checks with margins, simulated scenarios,
-        curves, equations, warnings and cautions.
-
-    Raises
-    ------
-    DesignValueError
-        When the design cannot be sized (e.g. no power consumers, unknown
-        battery key), naming the field.
+    values, checks, warnings, cautions, assumptions, scenarios, curves : tuple
+        As in :class:`~turnkit.result.SizingResult`, in the order the stage found them.
+    equation_keys : tuple of str
+        Keys of the equations (:mod:`turnkit.equations`) behind the values.
     """
-    stages = tuple(design.gear_train)
-    train, gear_notes = _train_cached(stages)
-    req = design.requirements
-    unit = train.output_unit
-    values: list[Value] = []
-    checks: list[Check] = []
-    warns: list[str] = list(gear_notes)
-    cautions: list[str] = list(GENERAL_CAUTIONS)
-    assumptions: list[tuple[str, str]] = []
-    eq_keys: list[str] = []
 
-    def add(key, label, value, unit_="", group="", equation="", note=""):
-        values.append(Value(key, label, value, unit_, group, equation, note))
+    values: tuple[Value, ...] = ()
+    checks: tuple[Check, ...] = ()
+    warnings: tuple[str, ...] = ()
+    cautions: tuple[str, ...] = ()
+    assumptions: tuple[tuple[str, str], ...] = ()
+    equation_keys: tuple[str, ...] = ()
+    scenarios: tuple[Scenario, ...] = ()
+    curves: tuple[Curve, ...] = ()
+
+
+class _SectionBuilder:
+    """Collects one stage's values, checks and notes, then freezes them into a :class:`Section`."""
+
+    __slots__ = ("values", "checks", "warnings", "cautions", "assumptions", "equation_keys")
+
+    def __init__(self):
+        self.values: list[Value] = []
+        self.checks: list[Check] = []
+        self.warnings: list[str] = []
+        self.cautions: list[str] = []
+        self.assumptions: list[tuple[str, str]] = []
+        self.equation_keys: list[str] = []
+
+    def add(self, key, label, value, unit_="", group="", equation="", note=""):
+        self.values.append(Value(key, label, value, unit_, group, equation, note))
         if equation:
-            eq_keys.append(equation)
+            self.equation_keys.append(equation)
 
-    # -- gear train --------------------------------------------------------
+    def extend_values(self, values) -> None:
+        for v in values:
+            self.values.append(v)
+            if v.equation:
+                self.equation_keys.append(v.equation)
+
+    def done(self, **extra) -> Section:
+        return Section(values=tuple(self.values), checks=tuple(self.checks), warnings=tuple(self.warnings),
+                       cautions=tuple(self.cautions), assumptions=tuple(self.assumptions),
+                       equation_keys=tuple(self.equation_keys), **extra)
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class Mechanics:
+    """Mechanics stage: the gear train, its exact ratio, travel, backlash and back-drive.
+
+    Compared and hashed by identity: later stages' caches are keyed on it, and the stage
+    itself is cached on the gear stages, so equal trains give the same object.
+    """
+
+    section: Section
+    stages: tuple
+    train: gears.GearTrain
+    unit: str
+    kinematics: _Kinematics
+
+
+@dataclass(frozen=True, slots=True)
+class CounterRange:
+    """Counting stage, range part: the stroke in quarter-turns and the counter width that holds it."""
+
+    section: Section
+    settings: CounterSettings
+
+
+@dataclass(frozen=True, slots=True)
+class Sensing:
+    """Sensing stage: sensor errors, calibration, output resolution and accuracy, half-turn margin."""
+
+    section: Section
+    summary: Any
+    resolution_out: float
+    sweep_curve: Curve | None
+
+
+@dataclass(frozen=True, slots=True)
+class SpeedBounds:
+    """Counting stage, limits part: the schedule, the narrowest-quadrant limits, the back-drive check and the
+    longest allowed poll period."""
+
+    section: Section
+    schedule: Any
+    limits: Any
+    guaranteed_rpm: float
+    out_speed_unit: str
+    req_speed: float | None
+    required_rpm: float | None
+    max_period_s: float | None
+    awake_s: float
+
+
+@dataclass(frozen=True, slots=True)
+class PowerLife:
+    """Power stage: the current budget (driven moves included), the battery derated for its site, its life."""
+
+    section: Section
+    pack: Any
+    profile: power.CurrentProfile
+    budget: power.PowerBudget
+    sched_kw: MappingProxyType
+    temperature_C: float
+    usable: float
+    life: float | None
+    shelf_life_years: float | None
+
+
+def mechanics_stage(design: ActuatorDesign) -> Mechanics:
+    """Mechanics: the gear train's exact ratio, direction, travel per motor turn, backlash and back-drive.
+
+    Cached on the design's gear stages.
+    """
+    return _mechanics(tuple(design.gear_train))
+
+
+@lru_cache(maxsize=256)
+def _mechanics(stages: tuple) -> Mechanics:
+    train, gear_notes = _train_cached(stages)
+    unit = train.output_unit
+    out = _SectionBuilder()
+    out.warnings.extend(gear_notes)
+    add = out.add
     ratio = train.ratio
     per_turn = train.travel_per_motor_turn
     add("ratio", "Overall reduction (motor turns per turn of the last rotary member)", str(ratio), "",
@@ -697,19 +818,36 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     add("can_backdrive", "Output can turn the motor", train.can_backdrive, "", "gear train")
     for line in train.backdrive_report():
         if "unknown" in line:
-            warns.append(line)
+            out.warnings.append(line)
     if train.can_backdrive:
-        cautions.append(_BACKDRIVE_CAUTION)
+        out.cautions.append(_BACKDRIVE_CAUTION)
     elif any(isinstance(s, (gears.WormStage, gears.LeadScrew)) for s in train.stages):
-        cautions.append(_CREEP_CAUTION)
+        out.cautions.append(_CREEP_CAUTION)
+    return Mechanics(out.done(), stages, train, unit,
+                     _Kinematics(train.travel_per_motor_turn, train.direction, train.output_unit))
 
-    stroke = req.stroke_mm if unit == "mm" else req.stroke_deg
-    other_stroke = req.stroke_deg if unit == "mm" else req.stroke_mm
+
+def counter_range_stage(design: ActuatorDesign, mech: Mechanics) -> CounterRange:
+    """Counting, range: motor turns and quarter-turns over the stroke, counter width needed and held.
+
+    Cached on the gear stages, the stroke and the ``[counter]`` section.
+    """
+    req = design.requirements
+    return _counter_range(mech, req.stroke_mm, req.stroke_deg, design.counter)
+
+
+@lru_cache(maxsize=256)
+def _counter_range(mech: Mechanics, stroke_mm, stroke_deg, counter_design) -> CounterRange:
+    train, unit = mech.train, mech.unit
+    out = _SectionBuilder()
+    add = out.add
+    stroke = stroke_mm if unit == "mm" else stroke_deg
+    other_stroke = stroke_deg if unit == "mm" else stroke_mm
     if other_stroke is not None:
         raise DesignValueError("requirements.stroke", other_stroke,
                                f"given in {unit} for this {'linear' if unit == 'mm' else 'rotary'} output",
                                unit="deg" if unit == "mm" else "mm")
-    settings = build_counter(design)
+    settings = _counter_settings(counter_design)
     quarter_turns_stroke = None
     if stroke is not None:
         motor_turns = train.motor_turns_for_stroke(stroke)
@@ -721,18 +859,31 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
         add("counter_bits_needed", "Counter width needed for the stroke", bits, "bit", "counter",
             equation="counter_bits")
     # Homed at zero at one end of the stroke: the travel up to the largest count.
-    counter_range = settings.max_count / 4 * float(per_turn)
+    counter_range = settings.max_count / 4 * float(train.travel_per_motor_turn)
     add("counter_bits", "Counter width", settings.width_bits, "bit", "counter")
     add("counter_range", "Output travel the counter can hold", float(counter_range), unit, "counter",
         note=f"{settings.max_count - settings.min_count + 1} quarter-turns, "
              f"{'signed' if settings.signed else 'unsigned'}, overflow: {settings.overflow_policy.value}")
     if stroke is not None:
-        checks.append(_check("counter_range", "Counter holds the whole stroke", float(counter_range), float(stroke),
-                            unit, ">=", advice=f"widen the counter to at least "
-                                               f"{_counter_bits_needed(quarter_turns_stroke, settings.signed)} bits"))
+        out.checks.append(_check("counter_range", "Counter holds the whole stroke", float(counter_range),
+                                 float(stroke), unit, ">=",
+                                 advice=f"widen the counter to at least "
+                                        f"{_counter_bits_needed(quarter_turns_stroke, settings.signed)} bits"))
+    return CounterRange(out.done(), settings)
 
-    # -- sensor and latches -------------------------------------------------
-    summary = _sensor_summary_named(design.sensor, stages, bool(design.sensor.calibrated))
+
+def sensing_stage(design: ActuatorDesign, mech: Mechanics, base_dir: str | Path | None = None) -> Sensing:
+    """Sensing: sensor angle errors (before or after calibration), a measured sweep's fit, output
+    resolution and accuracy (belt creep included), and the half-turn margin of the quadrant latches.
+
+    The sensor error analysis (with its simulated calibration fit) is cached on the ``[sensor]``
+    section alone, and a measured sweep's fit on its file's path, modification time and size.
+    """
+    req = design.requirements
+    train, unit = mech.train, mech.unit
+    out = _SectionBuilder()
+    add = out.add
+    summary = _sensor_summary_named(design.sensor, bool(design.sensor.calibrated))
     motor_peak = summary.peak_error_deg
     add("sensor_peak_error_deg", "Sensor angle error at the motor, peak"
         + (" (after calibration)" if design.sensor.calibrated else " (uncalibrated)"), motor_peak, "deg", "sensor")
@@ -744,49 +895,62 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     sweep_curve = None
     if design.sensor.sweep is not None:
         sweep_values, sweep_warns, sweep_assumptions, sweep_curve = _sweep_report(design.sensor, base_dir)
-        values.extend(sweep_values)
-        warns.extend(sweep_warns)
-        assumptions.extend(sweep_assumptions)
+        out.values.extend(sweep_values)
+        out.warnings.extend(sweep_warns)
+        out.assumptions.extend(sweep_assumptions)
     resolution_out = train.output_resolution(summary.resolution_deg)
     add("output_resolution", "Output resolution", resolution_out, unit, "sensor", equation="output_resolution")
     sensor_err_out = train.output_resolution(motor_peak)
-    accuracy_out = sensor_err_out + train.backlash_at_output()
+    backlash_out = train.backlash_at_output()
+    stroke = req.stroke_mm if unit == "mm" else req.stroke_deg
     creep_out, creep_warns = _belt_creep(train, stroke)   # friction belts slip: creep over the stroke
-    accuracy_out += creep_out
-    warns.extend(creep_warns)
+    out.warnings.extend(creep_warns)
+    accuracy_out = sensor_err_out + backlash_out + creep_out
     add("output_accuracy", "Output accuracy (sensor peak error + backlash"
         + (" + belt creep)" if creep_warns else ")"), accuracy_out, unit, "sensor",
-        note=f"sensor {sensor_err_out:.3g} {unit} + backlash {train.backlash_at_output():.3g} {unit}"
+        note=f"sensor {sensor_err_out:.3g} {unit} + backlash {backlash_out:.3g} {unit}"
              + (f" + belt creep {creep_out:.3g} {unit}" if creep_warns else ""))
     target_res = req.output_resolution_mm if unit == "mm" else req.output_resolution_deg
     if target_res is not None:
-        need = float(ratio) * resolution_out / target_res
+        need = float(train.ratio) * resolution_out / target_res
         add("min_reduction_for_resolution", "Smallest reduction giving the required resolution", need, ":1",
             "gear train", equation="output_resolution",
             note="with this sensor and the same final stage; inverse of the resolution equation")
-        checks.append(_check("output_resolution", "Output resolution is fine enough", resolution_out, target_res,
-                            unit, "<=", advice=f"raise the reduction to at least {need:.4g}:1, or use a "
-                                               "quieter sensor or a finer ADC"))
+        out.checks.append(_check("output_resolution", "Output resolution is fine enough", resolution_out,
+                                 target_res, unit, "<=",
+                                 advice=f"raise the reduction to at least {need:.4g}:1, or use a "
+                                        "quieter sensor or a finer ADC"))
     target_acc = req.output_accuracy_mm if unit == "mm" else req.output_accuracy_deg
     if target_acc is not None:
-        parts = "backlash" if train.backlash_at_output() > sensor_err_out else "sensor error"
-        checks.append(_check("output_accuracy", "Output accuracy is within the allowed error", accuracy_out,
-                            target_acc, unit, "<=",
-                            advice=f"the larger part is the {parts}: "
-                                   + ("reduce backlash (anti-backlash nut, preloaded stages)" if parts == "backlash"
-                                      else "calibrate the sensor or raise the reduction")))
+        parts = "backlash" if backlash_out > sensor_err_out else "sensor error"
+        out.checks.append(_check("output_accuracy", "Output accuracy is within the allowed error", accuracy_out,
+                                 target_acc, unit, "<=",
+                                 advice=f"the larger part is the {parts}: "
+                                        + ("reduce backlash (anti-backlash nut, preloaded stages)"
+                                           if parts == "backlash" else "calibrate the sensor or raise the reduction")))
 
     margin = latch_mod.half_turn_margin(build_latches(design), fine_error_deg=motor_peak)
     add("half_turn_margin_deg", "Half-turn margin of the quadrant latches", margin.margin_deg, "deg", "sensor",
         note="45 deg less latch tolerance, half the hysteresis, misalignment and sensor error")
-    checks.append(_check("half_turn_margin", "Latch tolerances and sensor error leave the half-turn decision correct",
-                         margin.consumed_deg, margin.available_deg, "deg", "<=",
-                         advice="tighten the latch switch-point tolerance, the hysteresis or the magnet alignment"))
+    out.checks.append(_check("half_turn_margin",
+                             "Latch tolerances and sensor error leave the half-turn decision correct",
+                             margin.consumed_deg, margin.available_deg, "deg", "<=",
+                             advice="tighten the latch switch-point tolerance, the hysteresis or the magnet "
+                                    "alignment"))
     if not margin.ok:
         zones = ", ".join(f"{a:.0f}-{b:.0f} deg" for a, b in margin.fail_zones_deg[:4])
-        warns.append(f"The half-turn decision can fail near {zones} of each motor turn.")
+        out.warnings.append(f"The half-turn decision can fail near {zones} of each motor turn.")
+    return Sensing(out.done(), summary, resolution_out, sweep_curve)
 
-    # -- schedule and speed bounds -------------------------------------------
+
+def speed_bounds_stage(design: ActuatorDesign, mech: Mechanics) -> SpeedBounds:
+    """Counting, limits: the poll schedule, the narrowest quadrant of the worst unit inside the latch
+    tolerances, the fastest motor speed counted, the onset of silent miscounts, the back-drive check with
+    the required counting margin and its followable advice (:mod:`turnkit.counting`)."""
+    req = design.requirements
+    train, unit = mech.train, mech.unit
+    out = _SectionBuilder()
+    add = out.add
     schedule = build_schedule(design)
     add("poll_period_ms", "Poll period while asleep", design.schedule.poll_period_ms, "ms", "schedule")
     awake_s = schedule.wake_time_s + schedule.settle_time_s + schedule.poll_time_s
@@ -802,24 +966,32 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     if req_speed is not None:
         required_rpm = motor_rpm_for_output_speed(req_speed, train, "mm/s" if unit == "mm" else "rpm",
                                                   "requirements.backdrive_speed")
-    # Counting with real latches (turnkit.counting): limits, the back-drive check and its advice.
     limits = counting.counting_limits(design)
     out_per_rpm, out_speed_unit = output_speed_for_motor_rpm(1.0, train)
     report = counting.backdrive_report(design, limits, required_rpm, req_speed, out_speed_unit, out_per_rpm,
-                                       float(ratio))
-    values.extend(report.values)
-    eq_keys.extend(v.equation for v in report.values if v.equation)
-    checks.extend([report.check] if report.check is not None else [])
-    guaranteed_rpm, max_period_s = limits.trackable_rpm, report.max_poll_period_s
+                                       float(train.ratio))
+    out.extend_values(report.values)
+    if report.check is not None:
+        out.checks.append(report.check)
+    return SpeedBounds(out.done(), schedule, limits, limits.trackable_rpm, out_speed_unit, req_speed, required_rpm,
+                       report.max_poll_period_s, awake_s)
 
-    # -- power and battery ---------------------------------------------------
+
+def power_stage(design: ActuatorDesign, mech: Mechanics, speed: SpeedBounds) -> PowerLife:
+    """Power: the average current and its breakdown (driven moves included), the battery derated for its
+    site (temperature, self-discharge, pulse sag and brown-out, fault drain), its usable capacity and life."""
+    req = design.requirements
+    train = mech.train
+    schedule = speed.schedule
+    out = _SectionBuilder()
+    add = out.add
     pack = build_battery(design)
     profile = build_profile(design, pack.nominal_voltage_V if pack is not None else None)
     # Driven moves: the motor (and any buffer leakage) join the budget; the electronics track meanwhile.
     electronics = profile
     profile, moves, move_values = _moves_stage(design, train, profile)
-    values.extend(move_values)
-    warns.extend(_move_warnings(moves, design.power))
+    out.extend_values(move_values)
+    out.warnings.extend(_move_warnings(moves, design.power))
     motion_events = sum(sc.bursts_per_day or 0.0 for sc in design.motion if sc.kind == "bursts")
     motion_fraction = 0.0
     for sc in design.motion:
@@ -844,23 +1016,24 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
     add("dominant_consumer", "Largest consumer", budget.dominant_consumer, "", "power",
         note=f"{budget.by_consumer()[budget.dominant_consumer]:.3g} uA of the average")
     add("dominant_state", "State that costs the most charge", budget.dominant_state, "", "power")
-    values.extend(_breakdown_values(budget))
+    out.extend_values(_breakdown_values(budget))
     if motion_events:
-        assumptions.append((f"Back-drive bursts: {motion_events:g} a day (from the motion scenarios) in the "
-                            "average current", "design file"))
+        out.assumptions.append((f"Back-drive bursts: {motion_events:g} a day (from the motion scenarios) in the "
+                                "average current", "design file"))
     temperature_C = design.battery.temperature_degC if design.battery is not None else 20.0
     if req.service_temperature_degC is not None:
         temperature_C = req.service_temperature_degC
     life = None
     usable = 1.0
+    shelf = None
     if pack is not None:
         # Site temperature, pulse sag and brown-out, fault drain: the pack comes back derated for the site.
         energy = _energy_stage(design, pack, electronics, schedule, moves, temperature_C, budget.average_current_uA)
-        pack, usable = energy.pack, energy.usable
-        values.extend(energy.values)
-        checks.extend(energy.checks)
-        warns.extend(energy.warnings)
-        assumptions.extend(energy.assumptions)
+        pack, usable, shelf = energy.pack, energy.usable, energy.shelf_life_years
+        out.extend_values(energy.values)
+        out.checks.extend(energy.checks)
+        out.warnings.extend(energy.warnings)
+        out.assumptions.extend(energy.assumptions)
         est = batt.estimate_life(pack, budget.average_current_uA, temperature_C=temperature_C,
                                  usable_fraction=usable, peak_current_mA=budget.peak_current_mA,
                                  self_discharge_per_year=pack.self_discharge_per_year)
@@ -876,129 +1049,238 @@ def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: 
         add("self_discharge_percent", "Share of the capacity lost to self-discharge",
             100 * est.lost_to_self_discharge_mAh / est.usable_capacity_mAh if est.usable_capacity_mAh else 0.0, "%",
             "battery")
-        warns.extend(est.warnings)
-        cautions.extend(c for c in est.cautions if c not in cautions)
-        assumptions.append((f"Battery data for {pack.cell.name}: typical values at low drain", "; ".join(
+        out.warnings.extend(est.warnings)
+        out.cautions.extend(est.cautions)
+        out.assumptions.append((f"Battery data for {pack.cell.name}: typical values at low drain", "; ".join(
             dict.fromkeys(src for _, src in pack.cell.sources)) or "user data"))
-        assumptions.append(("Battery derated for the site: capacity at the coldest temperature, linear "
-                            "self-discharge at the year-mean rate, 8766 h per year", "(common practice)"))
-        if req.battery_life_years is not None:
-            advice = ""
-            try:
-                need_cap = float(batt.capacity_needed_mAh(budget.average_current_uA, req.battery_life_years, pack,
-                                                          temperature_C=temperature_C, usable_fraction=usable))
-                # Rounded up, so that a battery of the size named does last the life.
-                advice = (f"a battery of at least {counting.round_up_sig(need_cap):.4g} mAh at the present poll "
-                          f"period of {schedule.poll_period_s * 1e3:.4g} ms, or a lower average current")
-                if req_speed is not None and max_period_s > schedule.poll_period_s * 1.01:
-                    advice += (f"; polling only as often as the back-drive speed needs (every "
-                               f"{max_period_s * 1e3:.4g} ms) also saves charge")
-                add("capacity_needed_mAh", "Capacity needed for the required life at the present poll period",
-                    need_cap, "mAh", "battery", equation="capacity_for_life",
-                    note=f"polling every {schedule.poll_period_s * 1e3:.4g} ms while asleep")
-                # Largest sleep current that still lasts the life: solve the life equation for the
-                # average current, then give the whole change to the time spent asleep.
-                asleep_share = budget.state_fractions()["asleep"]
-                tf = float(pack.temperature_factor(temperature_C))
-                c_nom = pack.capacity_mAh
-                allowed_uA = (c_nom * tf * usable - pack.self_discharge_per_year * c_nom * req.battery_life_years) \
-                    / (_HOURS_PER_YEAR * req.battery_life_years) * 1e3
-                sleep_now = profile.state_totals_uA()["asleep"]
-                if asleep_share > 0:
-                    max_sleep = sleep_now + (allowed_uA - budget.average_current_uA) / asleep_share
-                    add("max_sleep_current_uA", "Largest total sleep current that lasts the required life",
-                        max_sleep, "uA", "battery", equation="battery_life",
-                        note=("negative: even zero sleep current cannot make the life; the wake-ups and moves "
-                              "alone cost too much") if max_sleep < 0 else f"now {sleep_now:.3g} uA")
-            except DesignValueError:
-                advice = (f"this chemistry cannot last {req.battery_life_years:g} years against its own "
-                          "self-discharge: choose another chemistry")
-            checks.append(_check("battery_life", "Battery lasts the required life", life, req.battery_life_years,
-                                "years", ">=", advice=advice))
+        out.assumptions.append(("Battery derated for the site: capacity at the coldest temperature, linear "
+                                "self-discharge at the year-mean rate, 8766 h per year", "(common practice)"))
+    return PowerLife(out.done(), pack, profile, budget, MappingProxyType(sched_kw), temperature_C, usable, life,
+                     shelf)
+
+
+def advice_stage(design: ActuatorDesign, mech: Mechanics, speed: SpeedBounds, pw: PowerLife) -> Section:
+    """Checks and advice: battery life (judged on the charge or shelf life, whichever ends first) and
+    quiescent budget checks with what would fix them, and whether any poll period meets both the
+    back-drive speed and the life (with how far each must move if none does)."""
+    req = design.requirements
+    train = mech.train
+    schedule, max_period_s, req_speed = speed.schedule, speed.max_period_s, speed.req_speed
+    pack, profile, budget, life = pw.pack, pw.profile, pw.budget, pw.life
+    temperature_C, usable = pw.temperature_C, pw.usable
+    out = _SectionBuilder()
+    add = out.add
+    if pack is not None and req.battery_life_years is not None:
+        advice = ""
+        try:
+            need_cap = float(batt.capacity_needed_mAh(budget.average_current_uA, req.battery_life_years, pack,
+                                                      temperature_C=temperature_C, usable_fraction=usable))
+            # Rounded up, so that a battery of the size named does last the life.
+            advice = (f"a battery of at least {counting.round_up_sig(need_cap):.4g} mAh at the present poll "
+                      f"period of {schedule.poll_period_s * 1e3:.4g} ms, or a lower average current")
+            if req_speed is not None and max_period_s > schedule.poll_period_s * 1.01:
+                advice += (f"; polling only as often as the back-drive speed needs (every "
+                           f"{max_period_s * 1e3:.4g} ms) also saves charge")
+            add("capacity_needed_mAh", "Capacity needed for the required life at the present poll period",
+                need_cap, "mAh", "battery", equation="capacity_for_life",
+                note=f"polling every {schedule.poll_period_s * 1e3:.4g} ms while asleep")
+            # Largest sleep current that still lasts the life: solve the life equation for the
+            # average current, then give the whole change to the time spent asleep.
+            asleep_share = budget.state_fractions()["asleep"]
+            tf = float(pack.temperature_factor(temperature_C))
+            c_nom = pack.capacity_mAh
+            allowed_uA = (c_nom * tf * usable - pack.self_discharge_per_year * c_nom * req.battery_life_years) \
+                / (_HOURS_PER_YEAR * req.battery_life_years) * 1e3
+            sleep_now = profile.state_totals_uA()["asleep"]
+            if asleep_share > 0:
+                max_sleep = sleep_now + (allowed_uA - budget.average_current_uA) / asleep_share
+                add("max_sleep_current_uA", "Largest total sleep current that lasts the required life",
+                    max_sleep, "uA", "battery", equation="battery_life",
+                    note=("negative: even zero sleep current cannot make the life; the wake-ups and moves "
+                          "alone cost too much") if max_sleep < 0 else f"now {sleep_now:.3g} uA")
+        except DesignValueError:
+            advice = (f"this chemistry cannot last {req.battery_life_years:g} years against its own "
+                      "self-discharge: choose another chemistry")
+        out.checks.append(_check("battery_life", "Battery lasts the required life", life, req.battery_life_years,
+                                 "years", ">=", advice=advice))
     if pack is not None:
-        values.append(_service_life(checks, life, energy.shelf_life_years, req.battery_life_years))
+        out.values.append(_service_life(out.checks, life, pw.shelf_life_years, req.battery_life_years))
     host = design.power.host_supply
     budget_uA = req.quiescent_budget_uA
     if budget_uA is None and host is not None:
         budget_uA = host.quiescent_budget_uA
     if budget_uA is not None:
-        checks.append(_check("quiescent_budget", "Average current within the quiescent budget",
-                            budget.average_current_uA, budget_uA, "uA", "<=",
-                            advice="poll less often or cut the sleep current"))
+        out.checks.append(_check("quiescent_budget", "Average current within the quiescent budget",
+                                 budget.average_current_uA, budget_uA, "uA", "<=",
+                                 advice="poll less often or cut the sleep current"))
 
-    # -- conflicts between speed and life --------------------------------------
+    # Conflicts between speed and life.
     if max_period_s is not None and life is not None and req.battery_life_years is not None \
-            and max_period_s > awake_s:
+            and max_period_s > speed.awake_s:
         life_at_limit = float(batt.life_years(
-            pack, power.average_current_uA(profile, **{**sched_kw, "poll_period_s": max_period_s}),
+            pack, power.average_current_uA(profile, **{**pw.sched_kw, "poll_period_s": max_period_s}),
             temperature_C=temperature_C, usable_fraction=usable, warn=False))
         add("life_at_max_poll_period_years", "Battery life at the longest allowed poll period", life_at_limit,
             "years", "battery")
         if life_at_limit < req.battery_life_years:
-            warns.append(
+            out.warnings.append(
                 f"No poll period meets both requirements: polling every {max_period_s * 1e3:.4g} ms (the "
-                f"longest that follows {req_speed:g} {out_speed_unit}) lasts only {life_at_limit:.3g} years "
+                f"longest that follows {req_speed:g} {speed.out_speed_unit}) lasts only {life_at_limit:.3g} years "
                 f"against {req.battery_life_years:g} required.")
-            warns.extend(_relax_lines(profile, pack, schedule, required_rpm, req.battery_life_years, temperature_C,
-                                      train, usable, limits=limits))
+            out.warnings.extend(_relax_lines(profile, pack, schedule, speed.required_rpm, req.battery_life_years,
+                                             temperature_C, train, usable, limits=speed.limits))
+    return out.done()
 
-    # -- motion scenarios ---------------------------------------------------------
-    scenarios: list[Scenario] = []
+
+def accuracy_stage(design: ActuatorDesign, curves: bool = True) -> tuple[Section, tuple[str, ...]]:
+    """The output accuracy budget over the service temperatures, the magnet's field checks and count
+    keeping through supply events; also the keys of earlier checks it replaces."""
+    b = _accuracy_stage(design, curves)
+    return (Section(values=tuple(b.values), checks=tuple(b.checks), warnings=tuple(b.warnings),
+                    assumptions=tuple(b.assumptions), curves=tuple(b.curves)), tuple(b.replaced_checks))
+
+
+def scenarios_stage(design: ActuatorDesign, mech: Mechanics, counter: CounterRange, speed: SpeedBounds,
+                    base_dir: str | Path | None = None) -> Section:
+    """Counting, scenarios: each motion scenario simulated through the counter on the design's schedule,
+    for the worst unit inside the latch tolerances (or the unit the design gives), after an estimate of
+    the work that refuses unbounded runs.
+
+    Each scenario's simulation is cached on the scenario, the train's kinematics (travel per motor
+    turn, direction, output unit), the schedule, the counter and the latch edges.
+    """
+    train, unit = mech.train, mech.unit
     base = str(Path(base_dir).resolve()) if base_dir is not None else None
     edges = counting.unit_edge_shifts_deg(design)
-    if simulate:
-        _refuse_unbounded_work(design, base)
-        for sc in design.motion:
-            result, peak = _simulate_scenario(sc, stages, schedule, settings, base, edges)
-            scenarios.append(counting.scenario_row(design, sc, result, peak, train, limits, unit,
-                                                   _scenario_peak_to_peak(sc, train)))
+    _refuse_unbounded_work(design, base)
+    scenarios: list[Scenario] = []
+    for sc in design.motion:
+        result, peak = _simulate_scenario(sc, mech.kinematics, speed.schedule, counter.settings, base, edges)
+        scenarios.append(counting.scenario_row(design, sc, result, peak, train, speed.limits, unit,
+                                               _scenario_peak_to_peak(sc, train)))
+    return Section(scenarios=tuple(scenarios))
 
-    # -- accuracy budget over temperature, magnet fields, count keeping (its own stage) --
-    budget_stage = _accuracy_stage(design, curves)
-    values.extend(budget_stage.values)
-    checks = [c for c in checks if c.key not in budget_stage.replaced_checks] + list(budget_stage.checks)
-    warns.extend(budget_stage.warnings)
-    assumptions.extend(budget_stage.assumptions)
 
-    # -- curves ----------------------------------------------------------------
-    curve_list: list[Curve] = []
-    if curves:
-        # The limit line and shading count every speed (requirement and scenarios) with the margin.
-        allowed_s, allowed_why = counting.allowed_poll_period_s(limits, required_rpm,
-                                                                _scenario_peaks(design, stages, base))
-        curve_list.extend(budget_stage.curves)
-        curve_list.extend(_curves(design, train, schedule, settings, profile, pack, summary, sched_kw,
-                                  allowed_s, required_rpm, req_speed, out_speed_unit, temperature_C,
-                                  guaranteed_rpm, resolution_out, base, usable, edges=edges,
-                                  limit_note=(allowed_why, limits.margin)))
-        if sweep_curve is not None:
-            curve_list.append(sweep_curve)
+def curves_stage(design: ActuatorDesign, mech: Mechanics, counter: CounterRange, sensing: Sensing,
+                 speed: SpeedBounds, pw: PowerLife, base_dir: str | Path | None = None) -> Section:
+    """Plot data: life (or current) against poll period with the limit that counts every speed (the
+    requirement and each scenario's peak), a simulated back-drive event and its output error, resolution
+    and back-drive speed against reduction, current over a poll cycle, sensor error over a turn, and a
+    measured calibration sweep's fit."""
+    base = str(Path(base_dir).resolve()) if base_dir is not None else None
+    allowed_s, allowed_why = counting.allowed_poll_period_s(speed.limits, speed.required_rpm,
+                                                            _scenario_peaks(design, mech.stages, base))
+    out = _curves(design, mech.train, speed.schedule, counter.settings, pw.profile, pw.pack, sensing.summary,
+                  pw.sched_kw, allowed_s, speed.required_rpm, speed.req_speed, speed.out_speed_unit,
+                  pw.temperature_C, speed.guaranteed_rpm, sensing.resolution_out, base, pw.usable,
+                  edges=counting.unit_edge_shifts_deg(design), limit_note=(allowed_why, speed.limits.margin))
+    if sensing.sweep_curve is not None:
+        out.append(sensing.sweep_curve)
+    return Section(curves=tuple(out))
 
-    eq_keys.extend(["max_trackable_speed", "max_poll_period"])
-    text = _design_text(design)
+
+def assemble(design: ActuatorDesign, unit: str, sections, *, identify: bool = True) -> SizingResult:
+    """Join the stages' sections, in order, into one :class:`~turnkit.result.SizingResult`.
+
+    Parameters
+    ----------
+    design : ActuatorDesign
+        The design sized.
+    unit : str
+        Output unit of its gear train, ``"mm"`` or ``"deg"``.
+    sections : iterable of Section
+        The stages' sections in the order they appear in the result.
+    identify : bool
+        Fill ``design_hash`` and ``inputs`` from the design's canonical file text. Sweeps and Monte
+        Carlo runs, which read only values, checks and scenarios, pass False and skip writing and
+        reading that text (``design_hash`` is then empty and ``inputs`` an empty dict).
+    """
+    sections = tuple(sections)
+    join = lambda name: tuple(x for s in sections for x in getattr(s, name))  # noqa: E731
+    eq_keys = join("equation_keys") + ("max_trackable_speed", "max_poll_period")
+    digest, inputs = _identity(design) if identify else ("", {})
     return SizingResult(
         design_name=design.name,
-        design_hash=hashlib.sha256(text.encode()).hexdigest(),
+        design_hash=digest,
         turnkit_version=__version__,
         output_unit=unit,
-        values=tuple(values),
-        checks=tuple(checks),
-        scenarios=tuple(scenarios),
-        curves=tuple(curve_list),
-        equations=_equations(dict.fromkeys(eq_keys)),
-        warnings=tuple(dict.fromkeys(warns)),
-        cautions=tuple(dict.fromkeys(cautions)),
-        assumptions=tuple(assumptions) + (
-            ("Counted by the model: at most the narrowest quadrant between two latch edges (worst unit inside "
-             "the latch tolerances) between two polls, any phase, the longest interval between polls "
-             "including jitter",
-             "2-bit Gray code, one bit changes per step: F. Gray, US patent 2,632,058 (1953); narrowest "
-             "quadrant (derived, shown in docs/counter.md)"),
-            ("Gear ratios are exact fractions of tooth counts; lengths are taken at their decimal value",
-             "Shigley's Mechanical Engineering Design, ch. 13"),
-        ),
-        inputs=tomllib.loads(text),
+        values=join("values"),
+        checks=join("checks"),
+        scenarios=join("scenarios"),
+        curves=join("curves"),
+        equations=_equations(tuple(dict.fromkeys(eq_keys))),
+        warnings=tuple(dict.fromkeys(join("warnings"))),
+        cautions=tuple(dict.fromkeys(GENERAL_CAUTIONS + join("cautions"))),
+        assumptions=join("assumptions") + _ASSUMPTIONS,
+        inputs=inputs,
     )
+
+
+_ASSUMPTIONS = (
+    ("Counted by the model: at most the narrowest quadrant between two latch edges (worst unit inside "
+     "the latch tolerances) between two polls, any phase, the longest interval between polls "
+     "including jitter",
+     "2-bit Gray code, one bit changes per step: F. Gray, US patent 2,632,058 (1953); narrowest "
+     "quadrant (derived, shown in docs/counter.md)"),
+    ("Gear ratios are exact fractions of tooth counts; lengths are taken at their decimal value",
+     "Shigley's Mechanical Engineering Design, ch. 13"),
+)
+
+
+def _identity(design: ActuatorDesign) -> tuple[str, dict]:
+    text = _design_text(design)
+    return hashlib.sha256(text.encode()).hexdigest(), tomllib.loads(text)
+
+
+# ---------------------------------------------------------------------------
+# the engine
+# ---------------------------------------------------------------------------
+
+def size(design: ActuatorDesign, *, base_dir: str | Path | None = None, curves: bool = True,
+         simulate: bool = True, identify: bool = True) -> SizingResult:
+    """Size one actuator design.
+
+    Parameters
+    ----------
+    design : ActuatorDesign
+        The validated design (from :func:`turnkit.designfile.load_design` or Python).
+    base_dir : path, optional
+        Folder that relative trace and calibration-sweep paths are relative to
+        (the design file's folder).
+    curves : bool
+        Also compute the plot data (the dashboard and the HTML summary want it;
+        the command line without ``-o`` does not).
+    simulate : bool
+        Simulate each motion scenario through the counter and its schedule.
+    identify : bool
+        Fill the result's ``design_hash`` and ``inputs`` (see :func:`assemble`).
+
+    Returns
+    -------
+    SizingResult
+        Values with units, requirement checks with margins, simulated scenarios,
+        curves, equations, warnings and cautions.
+
+    Raises
+    ------
+    DesignValueError
+        When the design cannot be sized (e.g. no power consumers, unknown
+        battery key), naming the field.
+    """
+    mech = mechanics_stage(design)
+    counter = counter_range_stage(design, mech)
+    sensing = sensing_stage(design, mech, base_dir)
+    speed = speed_bounds_stage(design, mech)
+    pw = power_stage(design, mech, speed)
+    advice = advice_stage(design, mech, speed, pw)
+    accuracy, replaced = accuracy_stage(design, curves)
+    scenarios = scenarios_stage(design, mech, counter, speed, base_dir) if simulate else Section()
+    plots = curves_stage(design, mech, counter, sensing, speed, pw, base_dir) if curves else Section()
+    # The accuracy budget over temperature replaces the one-temperature accuracy check.
+    sensed = replace(sensing.section, checks=tuple(c for c in sensing.section.checks if c.key not in replaced))
+    return assemble(design, mech.unit,
+                    (mech.section, counter.section, sensed, speed.section, pw.section, advice, accuracy, scenarios,
+                     plots), identify=identify)
 
 
 def _relax_lines(profile, pack, schedule, required_rpm, life_years, temperature_C, train,
@@ -1264,17 +1546,7 @@ def _refuse_unbounded_work(design: ActuatorDesign, base_dir: str | Path | None) 
 # limits named in the user's words
 # ---------------------------------------------------------------------------
 
-def _backdrive_advice(max_period_s: float, awake_s: float) -> str:
-    """Advice for a failed back-drive speed check; says so when no poll period can work."""
-    if max_period_s > awake_s:
-        return (f"poll at least every {max_period_s * 1e3:.4g} ms (with jitter included), "
-                "or lower the reduction")
-    return (f"no poll period can: the speed needs a poll every {max_period_s * 1e3:.4g} ms, shorter than the "
-            f"{awake_s * 1e3:.4g} ms each wake-up takes (wake, settle and poll time); lower the reduction (the "
-            "motor then turns slower under back-drive) or shorten the wake-up")
-
-
-def _sensor_summary_named(sensor_design, stages: tuple, calibrated: bool):
+def _sensor_summary_named(sensor_design, calibrated: bool):
     """:func:`_sensor_summary`, with a failed fit of the simulated calibration sweep named by the design's key.
 
     The summary fits a simulated sweep of the sensor; with a very coarse ADC
@@ -1283,14 +1555,14 @@ def _sensor_summary_named(sensor_design, stages: tuple, calibrated: bool):
     same function), not as a problem with a measured sweep file.
     """
     try:
-        return _sensor_summary(sensor_design, stages, calibrated)
+        return _sensor_summary(sensor_design, calibrated)
     except DesignValueError as exc:
         if not exc.field.startswith("sweep"):
             raise
         reason = exc.args[0] if exc.args else str(exc)
     for bits in range(sensor_design.adc_bits + 1, 33):
         try:
-            _sensor_summary(replace(sensor_design, adc_bits=bits), stages, calibrated)
+            _sensor_summary(replace(sensor_design, adc_bits=bits), calibrated)
         except DesignValueError:
             continue
         raise DesignValueError("sensor.adc_bits", sensor_design.adc_bits, f"at least {bits} for this sensor",
@@ -1419,7 +1691,7 @@ def _accuracy_stage_cached(design: ActuatorDesign, curves: bool) -> _BudgetStage
 
     stages = tuple(design.gear_train)
     train = _train_cached(stages)[0]
-    summary = _sensor_summary(design.sensor, stages, bool(design.sensor.calibrated))
+    summary = _sensor_summary_named(design.sensor, bool(design.sensor.calibrated))
     unit = train.output_unit
     stroke = design.requirements.stroke_mm if unit == "mm" else design.requirements.stroke_deg
     acc = design.accuracy

@@ -24,6 +24,8 @@ __all__ = [
     "same_kind",
     "format_number",
     "format_quantity",
+    "quick_quantity",
+    "quick_fraction",
 ]
 
 # The fixed grammar of a quantity: a number, then (optionally) a unit. Only the
@@ -199,3 +201,88 @@ def format_quantity(value: float, unit: str) -> str:
     same float.
     """
     return f"{format_number(value)} {unit}"
+
+
+# ---------------------------------------------------------------------------
+# reading common quantities without pint
+# ---------------------------------------------------------------------------
+#
+# Design files mostly write "number unit" in a field's own unit or a near prefix ("2 mm",
+# "1.5 mA"). Those are read here with the same result as pint (the factors were taken from
+# pint once; tests/test_units_quick.py checks every entry against pint), so loading such a
+# file never builds the pint registry. Anything else goes to pint as before.
+
+_QUICK_NUMBER = re.compile(
+    r"^\s*([-+]?)((?:0|[1-9]\d*)(?:\.\d*)?(?:[eE][-+]?\d+)?|\.\d+(?:[eE][-+]?\d+)?)\s*([A-Za-z%][A-Za-z/^*0-9]*)\s*$")
+
+#: Written unit -> (dimension, canonical unit it converts to, factor). The dimension words are
+#: those of :data:`turnkit.design.UNIT_DIMENSIONS`; a factor of 1 keeps the number as written.
+QUICK_UNITS: dict[str, tuple[str, str, float]] = {
+    **{u: (dim, u, 1) for u, dim in (
+        ("mm", "length"), ("deg", "angle"), ("rpm", "rotational speed"), ("mm/s", "linear speed"),
+        ("deg/s^2", "angular acceleration"), ("mm/s^2", "linear acceleration"), ("s", "time"), ("ms", "time"),
+        ("us", "time"), ("years", "time"), ("mV", "voltage"), ("V", "voltage"), ("uA", "current"),
+        ("mAh", "charge"), ("Hz", "frequency"), ("degC", "temperature"))},
+    "mA": ("current", "uA", 1000),
+    "uV": ("voltage", "mV", 0.001),
+}
+
+#: Written unit -> factor to a plain fraction ("2 %" is 0.02).
+QUICK_FRACTIONS: dict[str, float] = {"%": 0.01}
+
+
+def _quick_number(text: str):
+    """(number as pint reads it, unit text) of "number unit", or None."""
+    match = _QUICK_NUMBER.match(text.replace("µ", "u").replace("μ", "u"))
+    if match is None:
+        return None
+    sign, digits, unit = match.groups()
+    if len(digits) > 40:
+        return None  # very long numbers go the general way (int() of thousands of digits is refused)
+    # The general reader takes the number as a float of the text as written (so "-0" is -0.0).
+    return float(sign + digits), unit
+
+
+def quick_quantity(text: str, units: tuple[str, ...], dimensions: dict[str, tuple[str, str]]):
+    """Read "number unit" as one of ``units`` without pint, or return None (then ask pint).
+
+    Parameters
+    ----------
+    text : str
+        The value as written ("2 mm", "1.5 mA").
+    units : tuple of str
+        The field's canonical units, in order of preference.
+    dimensions : dict
+        Canonical unit -> (dimension word, attribute suffix), as :data:`turnkit.design.UNIT_DIMENSIONS`.
+
+    Returns
+    -------
+    (unit, value) or None
+        The canonical unit chosen (the first of ``units`` of the written unit's dimension) and the
+        value in it, float; the same pair the pint path gives.
+    """
+    parsed = _quick_number(text)
+    if parsed is None:
+        return None
+    value, written = parsed
+    if written in units and written in dimensions:
+        # Written in a unit of the field's own: taken as written when it is the field's first unit of
+        # that kind (the unit the general reader converts to).
+        kind = dimensions[written][0]
+        if next(u for u in units if dimensions.get(u, ("",))[0] == kind) == written:
+            return written, float(value)
+    if written not in QUICK_UNITS:
+        return None
+    dimension, target, factor = QUICK_UNITS[written]
+    first = next((u for u in units if dimensions.get(u, ("",))[0] == dimension), None)
+    if first != target:
+        return None
+    return target, float(value * factor if factor != 1 else value)
+
+
+def quick_fraction(text: str) -> float | None:
+    """Read "number %" as a plain fraction without pint (0.02 for "2 %"), or None."""
+    parsed = _quick_number(text)
+    if parsed is None or parsed[1] not in QUICK_FRACTIONS:
+        return None
+    return float(parsed[0] * QUICK_FRACTIONS[parsed[1]])
