@@ -9,8 +9,8 @@ import numpy as np
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from turnkit.motion import (BackDriveBursts, CoastDown, CombinedMotion, ConstantSpeed, MotionProfile,
-                            RecordedTrace, Still, TrapezoidMove, Vibration)
+from turnkit.motion import (BackDriveBursts, BurstReplay, CoastDown, CombinedMotion, ConstantSpeed, MotionProfile,
+                            RecordedTrace, SegmentedMotion, Still, TrapezoidMove, Vibration)
 
 
 def _trace(seed: int, kind: str, shift: float) -> RecordedTrace:
@@ -38,6 +38,16 @@ def _profile(draw_kind: int, seed: int, shift: float) -> MotionProfile:
         return Vibration(amplitude_deg=5.0, frequency_hz=3.0, start_s=shift, duration_s=1.0)
     if draw_kind == 5:
         return Still(float(rng.normal(0, 10)))
+    if draw_kind == 8:
+        starts = shift + np.cumsum(rng.uniform(0.0, 1.0, 4))
+        durations = np.diff(np.append(starts, starts[-1] + 0.7)) * rng.uniform(0.2, 1.0, 4)
+        return SegmentedMotion(starts, durations, rng.normal(0, 200, 4), rng.normal(0, 400, 4),
+                               start_angle_deg=float(rng.normal(0, 10)))
+    if draw_kind == 9:
+        starts = shift + np.arange(3) * 2.0
+        return BurstReplay(starts, rng.uniform(0.05, 0.3, 3), rng.uniform(0.0, 1.0, 3),
+                           rng.choice([-1.0, 1.0], 3) * rng.uniform(100, 900, 3),
+                           start_angle_deg=float(rng.normal(0, 10)))
     return _trace(seed, "angle" if draw_kind == 6 else "speed", shift)
 
 
@@ -49,7 +59,7 @@ def _plain_sum(parts, t):
 
 
 @settings(max_examples=150, deadline=None)
-@given(kinds=st.lists(st.tuples(st.integers(0, 7), st.integers(0, 10**6), st.floats(0, 8)), min_size=1, max_size=6),
+@given(kinds=st.lists(st.tuples(st.integers(0, 9), st.integers(0, 10**6), st.floats(0, 8)), min_size=1, max_size=6),
        times=st.lists(st.floats(-1, 12), min_size=2, max_size=300))
 def test_sum_gives_the_same_bits_as_every_part_at_every_time(kinds, times):
     parts = tuple(_profile(k, seed, shift) for k, seed, shift in kinds)
