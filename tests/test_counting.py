@@ -226,3 +226,28 @@ def test_the_battery_advice_passes_when_followed(path):
     need = float(re.search(r"at least ([0-9.]+) mAh", check.advice).group(1))
     bigger = dataclasses.replace(design, battery=dataclasses.replace(design.battery, capacity_mAh=need))
     assert size(bigger, base_dir=path.parent, curves=False, simulate=False).check("battery_life").passed
+
+
+def test_the_reduction_advice_passes_when_followed():
+    # "lower the reduction to at most R:1": re-tooth the gate valve's first spur pair so that the
+    # overall reduction is at most R, size again, and the back-drive check passes.
+    import math
+    import re
+
+    path = DEMO / "irrigation-gate-valve.toml"
+    loaded = load_design(path)
+    slow = dataclasses.replace(loaded, schedule=dataclasses.replace(
+        loaded.schedule, poll_period_ms=loaded.schedule.poll_period_ms * 3))
+    result = size(slow, base_dir=DEMO, curves=False, simulate=False)
+    check = result.check("backdrive_speed")
+    assert not check.passed
+    most = float(re.search(r"lower the reduction to at most ([0-9.]+):1", check.advice).group(1))
+    ratio = result.value("ratio_float").value
+    assert most < ratio
+    first = slow.gear_train[0]
+    driven = math.floor(first.teeth_driven * most / ratio)
+    retoothed = dataclasses.replace(slow, gear_train=(dataclasses.replace(first, teeth_driven=driven),)
+                                    + tuple(slow.gear_train[1:]))
+    after = size(retoothed, base_dir=DEMO, curves=False, simulate=False)
+    assert after.value("ratio_float").value <= most
+    assert after.check("backdrive_speed").passed
