@@ -89,7 +89,7 @@ def test_the_crane_demo_fails_on_purpose_and_says_what_to_change():
 
 def test_ratio_and_travel_come_from_the_exact_train(small):
     result = size(small, curves=False)
-    assert result.value("ratio").value == "3"
+    assert result.value("ratio").value == Fraction(3) and result.value("ratio").formatted() == "3"
     assert result.value("travel_per_motor_turn").value == pytest.approx(2 / 3)
     # 100 mm at 2/3 mm per turn = 150 turns = 600 quarter-turns -> 10 bits + sign.
     assert result.value("stroke_quarter_turns").value == 600

@@ -54,6 +54,7 @@ Examples
 from __future__ import annotations
 
 import math
+from fractions import Fraction
 import pickle
 import re
 import threading
@@ -357,8 +358,8 @@ class _Chunk:
 def _number(value) -> float:
     if isinstance(value, (bool, np.bool_)):
         return float(value)
-    if isinstance(value, (int, float, np.integer, np.floating)):
-        return float(value)
+    if isinstance(value, (int, float, np.integer, np.floating, Fraction)):
+        return float(value)  # an exact ratio (Fraction) as its nearest float
     return math.nan
 
 
@@ -456,7 +457,7 @@ def _plan(design: ActuatorDesign, outputs, base_dir, simulate: bool) -> _Plan:
     with _TRAIN_LOCK:
         nominal = size(design, base_dir=base_dir, curves=False, simulate=simulate)
     numeric = {v.key: v for v in nominal.values
-               if isinstance(v.value, (int, float, np.integer, np.floating)) and not isinstance(v.value, bool)}
+               if isinstance(v.value, (int, float, np.integer, np.floating, Fraction)) and not isinstance(v.value, bool)}
     all_values = {v.key: v for v in nominal.values}
     checks = {c.key: c for c in nominal.checks}
     if outputs is None:
@@ -472,8 +473,7 @@ def _plan(design: ActuatorDesign, outputs, base_dir, simulate: bool) -> _Plan:
                 continue
             if key in checks:
                 continue
-            hint = "use 'ratio_float' for the reduction as a number" if key == "ratio" else ""
-            raise DesignValueError("outputs", key, allowed, hint=hint)
+            raise DesignValueError("outputs", key, allowed)
     units = {}
     for key in value_keys:
         units[key] = all_values[key].unit if key in all_values else checks[key].unit

@@ -25,6 +25,7 @@ from __future__ import annotations
 
 import json
 import math
+from fractions import Fraction
 import os
 import re
 import secrets
@@ -104,6 +105,8 @@ def _plain(value: Any) -> Any:
         return "nan" if math.isnan(v) else ("inf" if v > 0 else "-inf")
     if isinstance(value, str) or value is None:
         return value
+    if isinstance(value, Fraction):
+        return str(value)  # an exact ratio stays exact in JSON: "225/4"
     if isinstance(value, np.ndarray):
         if value.dtype.kind in "iub" or (value.dtype.kind == "f" and np.isfinite(value).all()):
             return value.tolist()  # already plain numbers: skip the per-item checks

@@ -47,7 +47,7 @@ Examples
 ... ''')
 >>> result = size(design, curves=False)
 >>> result.value("ratio").value
-'3'
+Fraction(3, 1)
 >>> round(result.value("max_poll_period_ms").value, 3)
 33.333
 """
@@ -803,7 +803,7 @@ def _mechanics(stages: tuple) -> Mechanics:
     add = out.add
     ratio = train.ratio
     per_turn = train.travel_per_motor_turn
-    add("ratio", "Overall reduction (motor turns per turn of the last rotary member)", str(ratio), "",
+    add("ratio", "Overall reduction (motor turns per turn of the last rotary member)", ratio, "",
         "gear train", note=f"exact; {float(ratio):.6g}:1")
     add("ratio_float", "Overall reduction, decimal", float(ratio), "", "gear train")
     add("direction", "Output direction for a positive motor turn", "same" if train.direction > 0 else "reversed",
