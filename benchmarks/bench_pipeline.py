@@ -154,14 +154,19 @@ def mc(args, pkgs, sum_s):
     repeats = 3 if args.quick else 7
     print(f"Monte Carlo on one core (camera-crane joint, {n} samples a repeat, median of {repeats}):")
     for which in ("sensor drawn", "sensor fixed"):
-        designs = {p: mod(p, "designfile").load_design(DEMO / "camera-crane-joint.toml") for p in pkgs}
+        designs = {pkgs[0]: mod(pkgs[0], "designfile").load_design(DEMO / "camera-crane-joint.toml")}
+        if len(pkgs) == 2:
+            # The baseline sizes the demo file as it was at its own revision (the format has grown since).
+            text = subprocess.run(["git", "show", f"{args.baseline}:demo/camera-crane-joint.toml"], cwd=ROOT,
+                                  capture_output=True, text=True, check=True).stdout
+            designs[pkgs[1]] = mod(pkgs[1], "designfile").loads_design(text, source="camera-crane-joint.toml")
         tols = {p: mc_tolerances(p, which) for p in pkgs}
         first = {}
-        for p in pkgs:  # warm up, and the two versions must agree
+        for p in pkgs:  # warm up
             r = mod(p, "explore").monte_carlo(designs[p], tols[p], 40, seed=1, base_dir=DEMO)
             first[p] = (r.all_passed.tolist(), {k: v.tobytes() for k, v in r.values.items()})
-        if len(pkgs) == 2:
-            assert first[pkgs[0]] == first[pkgs[1]], "current and baseline Monte Carlo results differ"
+        if len(pkgs) == 2 and first[pkgs[0]] != first[pkgs[1]]:
+            print("  (the two versions' models differ, so their results differ; only their speed is compared)")
         times = {p: [] for p in pkgs}
         for rep in range(repeats):
             for p in (pkgs if rep % 2 == 0 else pkgs[::-1]):
