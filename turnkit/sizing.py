@@ -1603,7 +1603,7 @@ def _service_temperatures_degC(design: ActuatorDesign) -> np.ndarray:
     cal = design.accuracy.calibration_temperature_degC
     if low <= cal <= high:
         grid = np.append(grid, cal)
-    return np.unique(grid)
+    return np.array(sorted(set(grid.tolist())))  # np.unique would import a numpy submodule on a cold start
 
 
 def _magnet_numbers(mag):
