@@ -39,6 +39,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -244,6 +245,7 @@ def latch_peak_field_mT(remanence_mT_, diameter_mm: float, thickness_mm: float, 
     return np.asarray(remanence_mT_, dtype=float) * unit
 
 
+@lru_cache(maxsize=256)
 def eccentricity_error_deg(diameter_mm: float, thickness_mm: float, airgap_mm: float,
                            eccentricity_mm: float, angles: int = 90) -> float:
     """Peak angle error at the shaft from the sensor sitting off the magnet's axis (deg).
