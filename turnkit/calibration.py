@@ -447,7 +447,9 @@ def _unit_factor(unit: str, kind: str, column: str, source: str):
     if known is not None and known[0] == kind:
         return known[1]
     target = "mV" if kind == "V" else "deg"
-    if unit:
+    from .units import is_plain_unit
+
+    if unit and is_plain_unit(unit):  # only a unit of the fixed grammar reaches pint: nothing is evaluated
         from .units import registry
 
         try:
@@ -456,7 +458,7 @@ def _unit_factor(unit: str, kind: str, column: str, source: str):
             pass
     wanted = "a voltage unit such as mV or V" if kind == "V" else "an angle unit, deg or rad"
     raise DesignFileError(column, f"header must give {wanted}, e.g. '{column}_{target}' or "
-                                  f"'{column} [{target}]'; got unit {unit!r}", source, 1)
+                                  f"'{column} [{target}]'", source, 1)
 
 
 def read_sweep_csv(source, *, x_column: str = "x", y_column: str = "y",
@@ -506,8 +508,8 @@ def read_sweep_csv(source, *, x_column: str = "x", y_column: str = "y",
         if col.lower() not in names:
             if not required:
                 return None
-            raise DesignFileError(col, f"no column named {col!r} in the header "
-                                       f"({', '.join(h.strip() for h in header)})", name, header_line)
+            raise DesignFileError(col, f"no column named {col!r} in the header ({len(header)} columns; the "
+                                       "header's own text is not repeated here)", name, header_line)
         j = names.index(col.lower())
         return j, _unit_factor(parsed[j][1], kind, col, name)
 
@@ -527,7 +529,7 @@ def read_sweep_csv(source, *, x_column: str = "x", y_column: str = "y",
             except ValueError:
                 value = math.nan
             if not math.isfinite(value):
-                what = "is missing" if cell == "" else f"{cell!r} is not a finite number"
+                what = "is missing" if cell == "" else "is not a finite number (a decimal point, no units)"
                 raise DesignFileError(header[j].strip(), f"value {what}", name, line)
             data[k].append(value * factor)
     arrays = [np.asarray(d, dtype=float) for d in data]

@@ -835,18 +835,18 @@ def load_trace_csv(source, *, train=None, at_output: bool = False, driven: bool 
     hn, hcells = header_line
     if len(hcells) != 2:
         raise DesignFileError("header", f"expected 2 columns 'time [unit]' and 'angle|position|speed [unit]', "
-                              f"got {len(hcells)}: {hcells}", source=name, line=hn)
+                              f"got {len(hcells)}", source=name, line=hn)
     parsed = []
-    for cell in hcells:
+    for k, cell in enumerate(hcells, start=1):
         m = _HEADER.match(cell)
         if not m:
-            raise DesignFileError("header", f"column {cell!r} must be written 'name [unit]', e.g. 'time [s]'",
+            raise DesignFileError("header", f"column {k} must be written 'name [unit]', e.g. 'time [s]'",
                                   source=name, line=hn)
         parsed.append((m.group(1).lower(), m.group(2).replace(" ", "")))
     (tname, tunit), (vname, vunit) = parsed
     if tname != "time" or tunit not in _TIME_UNITS:
         raise DesignFileError("header", f"first column must be 'time [unit]' with unit one of "
-                              f"{sorted(_TIME_UNITS)}, got {hcells[0]!r}", source=name, line=hn)
+                              f"{sorted(_TIME_UNITS)}", source=name, line=hn)
     linear = False
     if vname == "angle" and vunit in _ANGLE_UNITS:
         kind, scale = "angle", _ANGLE_UNITS[vunit]
@@ -858,7 +858,7 @@ def load_trace_csv(source, *, train=None, at_output: bool = False, driven: bool 
         kind, scale, linear = "speed", _LINEAR_SPEED_UNITS[vunit], True
     else:
         raise DesignFileError(
-            "header", f"second column {hcells[1]!r} not understood; use 'angle [deg|rad|rev|turn]', "
+            "header", "the second column's name or unit is not understood; use 'angle [deg|rad|rev|turn]', "
             f"'position [mm|um|m]' or 'speed [rpm|deg/s|rad/s|rev/s|mm/s|m/s|um/s]'", source=name, line=hn)
     times, values = [], []
     previous = -math.inf
@@ -868,9 +868,10 @@ def load_trace_csv(source, *, train=None, at_output: bool = False, driven: bool 
         try:
             t, v = float(cells[0]), float(cells[1])
         except ValueError:
-            raise DesignFileError("row", f"not a number in {cells}", source=name, line=n) from None
+            raise DesignFileError("row", "a value is not a number (a decimal point, no units or thousands "
+                                  "separators)", source=name, line=n) from None
         if not (math.isfinite(t) and math.isfinite(v)):
-            raise DesignFileError("row", f"values must be finite, got {cells}", source=name, line=n)
+            raise DesignFileError("row", "values must be finite numbers", source=name, line=n)
         t *= _TIME_UNITS[tunit]
         if t < 0:
             raise DesignFileError("time", f"time must be >= 0, got {cells[0]} {tunit}", source=name, line=n)
@@ -1146,14 +1147,14 @@ def _table_csv(source, columns: tuple[tuple[str, dict], ...]) -> tuple[str, list
         raise DesignFileError("", f"no header line; expected {want!r}", source=name)
     hn, cells = header
     if len(cells) != len(columns):
-        raise DesignFileError("header", f"expected {len(columns)} columns {want!r}, got {cells}", source=name,
+        raise DesignFileError("header", f"expected {len(columns)} columns {want!r}, got {len(cells)}", source=name,
                               line=hn)
     scales, units = [], []
     for cell, (col, allowed) in zip(cells, columns):
         m = _HEADER.match(cell)
         unit = m.group(2).replace(" ", "") if m else ""
         if not m or m.group(1).lower() != col or unit not in allowed:
-            raise DesignFileError("header", f"column {cell!r} must be '{col} [unit]' with unit one of "
+            raise DesignFileError("header", f"column '{col}' must be '{col} [unit]' with unit one of "
                                   f"{sorted(allowed)}", source=name, line=hn)
         scales.append(allowed[unit])
         units.append(unit)
@@ -1166,9 +1167,10 @@ def _table_csv(source, columns: tuple[tuple[str, dict], ...]) -> tuple[str, list
         try:
             nums = [float(x) for x in row]
         except ValueError:
-            raise DesignFileError("row", f"not a number in {row}", source=name, line=n) from None
+            raise DesignFileError("row", "a value is not a number (a decimal point, no units or thousands "
+                                  "separators)", source=name, line=n) from None
         if not all(math.isfinite(x) for x in nums):
-            raise DesignFileError("row", f"values must be finite, got {row}", source=name, line=n)
+            raise DesignFileError("row", "values must be finite numbers", source=name, line=n)
         values[r] = nums
     return name, [hn] + [n for n, _ in rows], units, [values[:, k] * scales[k] for k in range(len(columns))]
 

@@ -26,6 +26,7 @@ __all__ = [
     "format_quantity",
     "quick_quantity",
     "quick_fraction",
+    "is_plain_unit",
 ]
 
 # The fixed grammar of a quantity: a number, then (optionally) a unit. Only the
@@ -35,6 +36,23 @@ _NUMBER = r"[-+]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?"
 _UNIT_NAME = r"(?:[A-Za-z_\u00b0\u2126][A-Za-z_\u00b0\u2126]*|%)"
 _UNIT_FACTOR = rf"{_UNIT_NAME}(?:\s*(?:\^|\*\*)\s*[-+]?\d)?"
 _UNIT = rf"{_UNIT_FACTOR}(?:\s*[*/]\s*{_UNIT_FACTOR}|\s+{_UNIT_FACTOR})*"
+_PLAIN_UNIT = re.compile(rf"^\s*{_UNIT}\s*$")
+
+
+def is_plain_unit(text: str) -> bool:
+    """True when ``text`` is a unit of the fixed grammar (names, ``*``, ``/``, one-digit powers),
+    the only unit text ever handed to pint: no numbers, no arithmetic, nothing evaluated.
+
+    Parameters
+    ----------
+    text : str
+        A unit as written, e.g. ``"mV"`` or ``"deg/s^2"``.
+
+    Returns
+    -------
+    bool
+    """
+    return isinstance(text, str) and len(text) <= 40 and _PLAIN_UNIT.match(text) is not None
 _QUANTITY = re.compile(rf"^\s*({_NUMBER})\s*({_UNIT})?\s*$")
 _DECIMAL_COMMA = re.compile(r"^\s*[-+]?\d*,\d")
 _STARTS_WITH_NUMBER = re.compile(rf"^\s*{_NUMBER}")
