@@ -251,3 +251,25 @@ def test_the_reduction_advice_passes_when_followed():
     after = size(retoothed, base_dir=DEMO, curves=False, simulate=False)
     assert after.value("ratio_float").value <= most
     assert after.check("backdrive_speed").passed
+
+
+def test_a_field_wider_than_the_stated_latch_hysteresis_narrows_the_counting_bound():
+    # The magnet's field sets where a latch really switches: operate/release points of +-2.5 mT give
+    # the shade's latches more hysteresis than the 4 deg stated, and the counting bound follows it.
+    from turnkit.counting import counting_limits, effective_latch_angles_deg
+    from turnkit.sizing import latch_switch_spread_from_field
+
+    design = load_design(DEMO / "window-shade-winder.toml")
+    wide = dataclasses.replace(design, latches=dataclasses.replace(
+        design.latches, operate_field_mT=2.5, release_field_mT=-2.5))
+    spread, hysteresis = latch_switch_spread_from_field(wide)
+    assert hysteresis > wide.latches.hysteresis_deg
+    assert effective_latch_angles_deg(wide) == (max(wide.latches.switch_point_tolerance_deg, spread), hysteresis)
+    assert counting_limits(wide).widths.narrowest_quadrant_deg < counting_limits(design).widths.narrowest_quadrant_deg
+    result = size(wide, base_dir=DEMO, curves=False, simulate=False)
+    assert not result.check("backdrive_speed").passed
+    # Tightening the stated tolerance alone cannot help here; the advice offered still passes when applied.
+    advice = counting_advice(wide, base_dir=DEMO)
+    assert advice["backdrive_speed"]
+    for change in advice["backdrive_speed"]:
+        assert size(change.apply(wide), base_dir=DEMO, curves=False, simulate=False).check("backdrive_speed").passed

@@ -35,6 +35,8 @@ __all__ = [
     "BackdriveReport",
     "counting_limits",
     "latches_of",
+    "effective_latch_angles_deg",
+    "field_latch_angles_deg",
     "unit_edge_shifts_deg",
     "backdrive_report",
     "allowed_poll_period_s",
@@ -44,12 +46,40 @@ __all__ = [
 ]
 
 
-def latches_of(design) -> QuadrantLatches:
-    """The :class:`~turnkit.latches.QuadrantLatches` of a design's ``[latches]`` section."""
+def field_latch_angles_deg(design) -> tuple[float, float] | None:
+    """Switch-angle spread and hysteresis (deg, deg) that the magnet's field gives the latches over the
+    service temperatures, or None without ``[magnet]`` and latch operate/release points."""
+    if getattr(design, "magnet", None) is None or design.latches.operate_field_mT is None:
+        return None
+    from .sizing import latch_switch_spread_from_field
+
+    return latch_switch_spread_from_field(design)
+
+
+def effective_latch_angles_deg(design) -> tuple[float, float]:
+    """Switch-point tolerance and hysteresis (deg, deg) the counting model uses: the ``[latches]`` values,
+    or the magnet's field-derived ones where those are wider (the field sets where a latch really switches)."""
     lt = design.latches
+    field = field_latch_angles_deg(design)
+    if field is None:
+        return lt.switch_point_tolerance_deg, lt.hysteresis_deg
+    tolerance = max(lt.switch_point_tolerance_deg, float(field[0]))
+    hysteresis = max(lt.hysteresis_deg, float(field[1]))
+    if not tolerance + hysteresis / 2.0 < 45.0:
+        # The field does not switch the latches cleanly (too weak, too far): the latch field checks
+        # fail and say so; the counting bounds keep the stated values rather than no bound at all.
+        return lt.switch_point_tolerance_deg, lt.hysteresis_deg
+    return tolerance, hysteresis
+
+
+def latches_of(design) -> QuadrantLatches:
+    """The :class:`~turnkit.latches.QuadrantLatches` of a design: its ``[latches]`` section, widened to the
+    magnet's field-derived switch spread and hysteresis where those are larger."""
+    lt = design.latches
+    tolerance_deg, hysteresis_deg = effective_latch_angles_deg(design)
     try:
-        return QuadrantLatches(switch_point_tolerance_deg=lt.switch_point_tolerance_deg,
-                               hysteresis_deg=lt.hysteresis_deg,
+        return QuadrantLatches(switch_point_tolerance_deg=tolerance_deg,
+                               hysteresis_deg=hysteresis_deg,
                                magnet_misalignment_deg=lt.magnet_misalignment_deg, powered=lt.powered)
     except DesignValueError as exc:
         name = exc.field.split(".", 1)[-1]
@@ -297,6 +327,9 @@ def backdrive_report(design, limits: CountingLimits, required_rpm: float | None,
         w_need = n * 6.0 * limits.worst_interval_s / (1.0 - m_req)
         spread_max = (90.0 - w_need) / 2.0
         tol = _floor_sig(spread_max - w.hysteresis_counted_deg, 3)
+        field = field_latch_angles_deg(design)
+        if field is not None and float(field[0]) > tol:
+            tol = 0.0  # the magnet's field alone spreads the switch angles wider: a tighter part cannot help
         if tol > 0:
             c = DesignChange(f"tighten the latch switch-point tolerance to {tol:.3g} deg",
                              (("latches", "switch_point_tolerance_deg", tol),))
