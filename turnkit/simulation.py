@@ -91,14 +91,6 @@ def _last_nonzero(a: np.ndarray) -> int:
     return -1
 
 
-def _last_before(idx: np.ndarray, at: np.ndarray) -> np.ndarray:
-    """For each of ``at``, the largest element of the sorted ``idx`` below it, or −1."""
-    if not idx.size:
-        return np.full(at.size, -1, dtype=np.int64)
-    p = idx.searchsorted(at) - 1
-    return np.where(p >= 0, idx[p], -1)
-
-
 def _ramp(n: int) -> np.ndarray:
     """0, 1, …, n−1 as float64 (a read-only view of a cached array)."""
     global _RAMP
@@ -302,12 +294,19 @@ class _EventLog:
         self.total = 0
         self.room = limit
 
-    def add_at(self, times, idx, steps):
-        """Add the events at positions ``idx`` of ``times`` (true steps ``steps``); index only what is kept."""
-        m = min(idx.size, self.room)
-        if m:
-            self.add(times[idx[:m]], steps[:m])
-        self.total += idx.size - m
+    def add_where(self, times, idx, steps, mask, n):
+        """Add the ``n`` events at ``times[idx[mask]]`` (true steps ``steps[mask]``; no mask: all).
+
+        Only the events that are kept are gathered.
+        """
+        if not self.room:
+            self.total += n
+            return
+        if mask is not None:
+            idx, steps = idx[mask], steps[mask]
+        m = min(n, self.room)
+        self.add(times[idx[:m]], steps[:m])
+        self.total += n - m
 
     def add(self, times, steps):
         n = len(times)
@@ -506,16 +505,19 @@ class _Run:
             self.err_t.append(float(t))
             self.err_v.append(e)
 
-    def _log_errors(self, times, errors, idx=None):
-        """Error history entries at ``times`` (or at ``times[idx]``); ``times`` may view a work array."""
+    def _log_errors(self, times, errors, idx=None, offset=0):
+        """Error history entries ``errors + offset`` at ``times`` (or at ``times[idx]``).
+
+        ``times`` may view a work array.
+        """
         if not errors.size:
             return
-        self.err_max = max(self.err_max, int(_MAX(np.abs(errors))))
+        self.err_max = max(self.err_max, abs(int(_MAX(errors)) + offset), abs(int(_MIN(errors)) + offset))
         m = min(errors.size, self.err_room)
         if m:
             self.err_room -= m
             self.err_t_arrays.append(np.array(times[:m] if idx is None else times[idx[:m]], dtype=np.float64))
-            self.err_v_arrays.append(np.array(errors[:m], dtype=np.int64))
+            self.err_v_arrays.append(np.add(errors[:m], offset, dtype=np.int64))
 
     def _enter_fault(self, t):
         self.fault = True
@@ -990,15 +992,13 @@ class _Run:
         guess = self.settings.ambiguous_policy is AmbiguousPolicy.GUESS_LAST_DIRECTION
         track = self.adaptive or guess
         if track:
-            one = np.flatnonzero(a == 1)  # single steps, decoded right
-            odd = big[(r & 1).astype(bool)]  # silent reads decoded as a single step
+            odd = (r & 1).astype(bool)  # silent reads decoded as a single step
+            single = a == 1  # single steps decoded right
+            single[big[odd]] = True
         steps = dec.astype(np.int64)
         if amb.any():
             if guess:
-                at = big[amb]
-                last = np.maximum(_last_before(one, at), _last_before(odd, at))
-                seen = _DECODE_TABLE[d[np.maximum(last, 0)].astype(np.int64) & 3]
-                steps[amb] = 2 * np.where(last >= 0, seen, self.last_dir or 1)
+                steps[amb] = 2 * self._directions(d, single, big[odd], dec[odd], big[amb])
             else:
                 steps[amb] = 0
         err = np.cumsum(steps - db)  # count error change up to each of these reads
@@ -1013,18 +1013,38 @@ class _Run:
         self.count += int(q[-1]) - self.q_ref + (int(err[-1]) if err.size else 0)
         self.q_ref = int(q[-1])
         if track:
-            single = max(int(one[-1]) if one.size else -1, int(odd[-1]) if odd.size else -1)
-            if single >= 0:
-                self.last_dir = int(_DECODE_TABLE[int(d[single]) & 3])
-            moving = big[r != 0]  # decoded as a step (ambiguous included)
-            changed = max(int(one[-1]) if one.size else -1, int(moving[-1]) if moving.size else -1)
+            last_single = _last_nonzero(single)
+            if last_single >= 0:
+                self.last_dir = int(_DECODE_TABLE[int(d[last_single]) & 3])
+            moving = _last_nonzero(r)  # decoded as a step (ambiguous included)
+            changed = max(last_single, int(big[moving]) if moving >= 0 else -1)
             if changed >= 0:
                 self.last_change_s = float(times[changed])
         if big.size:
-            self.ambiguous.add_at(times, big[amb], db[amb])
-            silent = ~amb
-            self.silent.add_at(times, big[silent], db[silent])
-            self._log_errors(times, err + err_before, big)
+            n_amb = int(np.count_nonzero(amb))
+            self.ambiguous.add_where(times, big, db, amb, n_amb)
+            self.silent.add_where(times, big, db, ~amb if n_amb else None, big.size - n_amb)
+            self._log_errors(times, err, big, err_before)
+
+    def _directions(self, d, single, odd_at, odd_dec, at):
+        """Direction of the last single step before each read ``at`` (earlier reads: ``last_dir`` or +1).
+
+        Directions change rarely, so only the singles that turn the direction
+        round are searched.
+        """
+        one = np.flatnonzero(single)
+        if not one.size:
+            return np.full(at.size, self.last_dir or 1, dtype=np.int64)
+        way = d[one]  # ±1 where decoded right ...
+        if odd_at.size:
+            way[one.searchsorted(odd_at)] = odd_dec  # ... the decoded single step of a silent read
+        turns = np.flatnonzero(way[1:] != way[:-1]) + 1
+        # Each direction holds from a single step to the next turn: cut the reads ``at`` there.
+        cuts = np.empty(turns.size + 3, dtype=np.int64)
+        cuts[0], cuts[-1] = 0, at.size
+        cuts[1:-1] = at.searchsorted(np.concatenate((one[:1], one[turns])))
+        ways = np.concatenate(([self.last_dir or 1], way[:1], way[turns])).astype(np.int64)
+        return ways.repeat(np.diff(cuts))
 
     def _guess(self, decoded, amb):
         single = (decoded == 1) | (decoded == -1)
