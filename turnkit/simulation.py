@@ -26,7 +26,6 @@ codes and licensed practice, and re-home after any fault or battery event.
 
 from __future__ import annotations
 
-import bisect
 import math
 import threading
 from dataclasses import dataclass
@@ -408,8 +407,6 @@ class _Run:
         s, e = profile.motion_intervals()
         s, e = merge_intervals(np.clip(s, 0.0, duration), np.clip(e, 0.0, duration))
         self.motion_s, self.motion_e = s, e
-        # The same as Python floats: the one-burst shortcuts look them up one at a time.
-        self.s_list, self.e_list = s.tolist(), e.tolist()
         if schedule.track_when_driven:
             ds, de = profile.driven_intervals()
             ds, de = merge_intervals(np.clip(ds, 0.0, duration), np.clip(de, 0.0, duration))
@@ -623,8 +620,8 @@ class _Run:
 
     def _burst_grid(self, i, t_a, t_b, anchor, period):
         """Grid index range of polls in motion interval ``i`` (from ``t_a``), or None."""
-        s = max(self.s_list[i], t_a)
-        e = min(self.e_list[i], t_b)
+        s = max(float(self.motion_s[i]), t_a)
+        e = min(float(self.motion_e[i]), t_b)
         k_lo = max(math.floor((s - anchor) / period + GRID_TOLERANCE) + 1, 1)
         k_hi = min(math.floor((e - anchor) / period + GRID_TOLERANCE) + 1,
                    math.floor((t_b - anchor) / period + GRID_TOLERANCE))
@@ -638,8 +635,8 @@ class _Run:
 
     def _one_burst_slow(self, t_a, t_b) -> bool:
         """Slow polls up to the first read that sees a step, within one burst."""
-        i0 = bisect.bisect_right(self.e_list, t_a)
-        if i0 >= bisect.bisect_left(self.s_list, t_b):
+        i0 = int(self.motion_e.searchsorted(t_a, side="right"))
+        if i0 >= int(self.motion_s.searchsorted(t_b, side="left")):
             return True  # no motion before t_b: change_at stays None
         grid = self._burst_grid(i0, t_a, t_b, self.slow_anchor, self.schedule.poll_period_s)
         if grid is None:
@@ -689,9 +686,9 @@ class _Run:
 
     def _one_burst_fast(self, t_a, t_b) -> bool:
         """Fast polls from ``t_a`` until the hold expires, within one burst and the gap after it."""
-        S = self.s_list
-        i1 = bisect.bisect_left(S, t_b)
-        i0 = bisect.bisect_right(self.e_list, t_a)
+        S = self.motion_s
+        i1 = int(S.searchsorted(t_b, side="left"))
+        i0 = int(self.motion_e.searchsorted(t_a, side="right"))
         if i0 >= i1:
             return True  # no motion before t_b: fast_end stays None
         if self.fast_until < S[i0]:
