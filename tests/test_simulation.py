@@ -558,3 +558,25 @@ def test_kept_events_must_be_a_count():
     for bad in (-1, 2.5, True, "10"):
         with pytest.raises(DesignValueError, match="kept_events"):
             CounterSettings(kept_events=bad)
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.floats(1.0, 3.0), st.sampled_from([1, -1]), st.floats(0, 360), st.floats(20, 300), st.floats(1, 30),
+       st.sampled_from(["guess_last_direction", "flag_and_continue"]), st.sampled_from([16, 37]))
+def test_small_batches_of_fast_reads_match_the_oracle(multiple, sign, phase, amplitude, freq, policy, chunk):
+    # Batches of 16 or 37 reads: an ambiguous read often opens a batch, and the guessed direction
+    # then comes from the last single step of an earlier batch (a reversal by the vibration included).
+    period = 0.01
+    profile = CombinedMotion((
+        ConstantSpeed(sign * multiple * max_trackable_speed_rpm(period), start_s=0.2, duration_s=1.5,
+                      start_angle_deg=phase),
+        Vibration(amplitude, freq, start_s=0.9, duration_s=0.6),
+    ))
+    res = simulate(profile, FixedSchedule(period), 2.0, CounterSettings(32, ambiguous_policy=policy),
+                   chunk_polls=chunk)
+    times = [k * period for k in range(1, 201)]
+    ref = oracle(lambda t: float(profile.angle_deg(np.array([t]))[0]), times, 2.0, policy=policy)
+    assert res.ambiguous_count == len(ref.ambiguous) and res.silent_error_count == ref.silent
+    assert np.allclose(res.ambiguous_events.times_s, [t for t, _ in ref.ambiguous], rtol=0, atol=1e-9)
+    assert res.ambiguous_events.true_steps.tolist() == [s for _, s in ref.ambiguous]
+    assert (res.final_count, res.true_final_count) == (ref.count, ref.truth)
