@@ -491,3 +491,92 @@ def test_flag_and_continue_counts_every_ambiguous_read_of_a_year_without_a_fault
     assert go_on.fault_count == 0 and go_on.ambiguous_count > 1000
     assert go_on.state_time_s["fault"] == 0.0
     assert go_on.poll_count == int(year / period)
+
+
+# ------------------------------------------- reads decoded at the non-single steps only
+def dense_path(profile, sch, duration, settings, **kw):
+    """The same run with every read of a chunk decoded (the sparse decoding switched off)."""
+    from turnkit import simulation
+
+    return simulation._Run(profile, sch, duration, settings, kw.get("power_loss_s", ()), True,  # noqa: SLF001
+                           kw.get("trace_window_s"), 20_000, kw.get("chunk_polls", 1 << 16),
+                           edges=simulation._edge_offsets(kw.get("edge_shifts_deg")), sparse=False).execute()
+
+
+@settings(max_examples=150, deadline=None)
+@given(busy_profiles(max_rpm=20_000.0), st.sampled_from(["guess_last_direction", "flag_and_continue"]),
+       st.booleans(), st.sampled_from([0.0, 0.001]), st.sampled_from([None, (5.0, -20.0, 40.0, -3.0)]),
+       st.sampled_from([16, 100, 1 << 16]), st.sampled_from([6, 32, 32]), st.sampled_from(["wrap", "saturate", "fault"]),
+       st.floats(1.0, 4.0), st.sampled_from([1, -1]))
+def test_sparse_decoding_gives_the_dense_result(profile, policy, adaptive, jitter, edges, chunk, width, overflow,
+                                                multiple, sign):
+    # Fast motion and vibration make ambiguous and silent reads (up to 13 quarters a read), narrow
+    # counters make chunks near the limits take the dense path, small chunks split runs of steps
+    # (a chunk may start with an ambiguous read whose direction comes from an earlier chunk).
+    turn = ConstantSpeed(sign * multiple * max_trackable_speed_rpm(0.005), start_s=0.5, duration_s=2.0)
+    profile = CombinedMotion((profile, turn))
+    sch = AdaptiveSchedule(0.05, 0.005, 0.2, jitter_s=jitter, wake_time_s=0, settle_time_s=0, poll_time_s=0) \
+        if adaptive else FixedSchedule(0.005, jitter_s=jitter, wake_time_s=0, settle_time_s=0, poll_time_s=0)
+    s = CounterSettings(width, ambiguous_policy=policy, overflow_policy=overflow)
+    kw = {"edge_shifts_deg": edges, "chunk_polls": chunk}
+    assert_same_result(simulate(profile, sch, 3.0, s, **kw), dense_path(profile, sch, 3.0, s, **kw))
+
+
+@settings(max_examples=25, deadline=None)
+@given(busy_profiles(max_rpm=20_000.0), st.sampled_from(["flag_and_hold", "guess_last_direction",
+                                                         "flag_and_continue"]), st.integers(0, 30))
+def test_kept_events_are_the_first_ones_and_every_event_is_counted(profile, policy, kept):
+    full = simulate(profile, FixedSchedule(0.005), 3.0, CounterSettings(32, ambiguous_policy=policy))
+    few = simulate(profile, FixedSchedule(0.005), 3.0, CounterSettings(32, ambiguous_policy=policy,
+                                                                       kept_events=kept))
+    assert few.ambiguous_count == full.ambiguous_count == len(full.ambiguous_events)
+    assert few.silent_error_count == full.silent_error_count == len(full.silent_events)
+    assert (few.final_count, few.poll_count) == (full.final_count, full.poll_count)
+    for name in ("ambiguous_events", "silent_events"):
+        a, b = getattr(few, name), getattr(full, name)
+        assert len(a) == min(kept, len(b))
+        assert np.array_equal(a.times_s, b.times_s[:kept]) and np.array_equal(a.true_steps, b.true_steps[:kept])
+    assert few.error_history_times_s.size == min(kept, full.error_history_times_s.size)
+    assert np.array_equal(few.error_history_quarter_turns, full.error_history_quarter_turns[:kept])
+    history = np.abs(full.error_history_quarter_turns)
+    assert few.max_abs_error_quarter_turns == full.max_abs_error_quarter_turns == (history.max() if history.size else 0)
+
+
+def test_a_long_run_of_ambiguous_reads_keeps_only_the_first_events():
+    fast = 1.4 * max_trackable_speed_rpm(0.01)  # about 40 % of the reads step two quarters
+    turn = ConstantSpeed(fast, start_s=0.0, duration_s=400.0, start_angle_deg=10.0)
+    res = simulate(turn, FixedSchedule(0.01), 400.0, CounterSettings(32, ambiguous_policy="flag_and_continue",
+                                                                     kept_events=50))
+    assert res.ambiguous_count > 10_000 and len(res.ambiguous_events) == 50
+    assert res.error_history_times_s.size == 50
+    # flag-and-continue drops two quarters per ambiguous read; nothing else goes wrong at this speed
+    assert res.final_count_error == -2 * res.ambiguous_count
+    assert res.max_abs_error_quarter_turns == 2 * res.ambiguous_count
+
+
+def test_kept_events_must_be_a_count():
+    for bad in (-1, 2.5, True, "10"):
+        with pytest.raises(DesignValueError, match="kept_events"):
+            CounterSettings(kept_events=bad)
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.floats(1.0, 3.0), st.sampled_from([1, -1]), st.floats(0, 360), st.floats(20, 300), st.floats(1, 30),
+       st.sampled_from(["guess_last_direction", "flag_and_continue"]), st.sampled_from([16, 37]))
+def test_small_batches_of_fast_reads_match_the_oracle(multiple, sign, phase, amplitude, freq, policy, chunk):
+    # Batches of 16 or 37 reads: an ambiguous read often opens a batch, and the guessed direction
+    # then comes from the last single step of an earlier batch (a reversal by the vibration included).
+    period = 0.01
+    profile = CombinedMotion((
+        ConstantSpeed(sign * multiple * max_trackable_speed_rpm(period), start_s=0.2, duration_s=1.5,
+                      start_angle_deg=phase),
+        Vibration(amplitude, freq, start_s=0.9, duration_s=0.6),
+    ))
+    res = simulate(profile, FixedSchedule(period), 2.0, CounterSettings(32, ambiguous_policy=policy),
+                   chunk_polls=chunk)
+    times = [k * period for k in range(1, 201)]
+    ref = oracle(lambda t: float(profile.angle_deg(np.array([t]))[0]), times, 2.0, policy=policy)
+    assert res.ambiguous_count == len(ref.ambiguous) and res.silent_error_count == ref.silent
+    assert np.allclose(res.ambiguous_events.times_s, [t for t, _ in ref.ambiguous], rtol=0, atol=1e-9)
+    assert res.ambiguous_events.true_steps.tolist() == [s for _, s in ref.ambiguous]
+    assert (res.final_count, res.true_final_count) == (ref.count, ref.truth)

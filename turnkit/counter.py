@@ -177,6 +177,11 @@ class CounterSettings:
     hold_s : float
         How long the electronics poll fast after motion was seen, s (used by
         :func:`step`; the simulation takes it from the schedule).
+    kept_events : int
+        The simulation keeps the times and true steps of at most this many
+        ambiguous reads, as many silent ones and as many entries of the count
+        error history (the first ones); it counts all of them. Bounds the
+        memory of a run whatever the number of events.
     """
 
     width_bits: int = 16
@@ -185,6 +190,7 @@ class CounterSettings:
     ambiguous_policy: AmbiguousPolicy = AmbiguousPolicy.FLAG_AND_HOLD
     start_count: int = 0
     hold_s: float = 0.0
+    kept_events: int = 100_000
 
     def __post_init__(self):
         if isinstance(self.width_bits, bool) or not isinstance(self.width_bits, (int, np.integer)) \
@@ -210,6 +216,10 @@ class CounterSettings:
         object.__setattr__(self, "start_count", int(self.start_count))
         if not (isinstance(self.hold_s, (int, float)) and 0.0 <= self.hold_s < float("inf")):
             raise DesignValueError("CounterSettings.hold_s", self.hold_s, "a finite number >= 0", unit="s")
+        if isinstance(self.kept_events, bool) or not isinstance(self.kept_events, (int, np.integer)) \
+                or self.kept_events < 0:
+            raise DesignValueError("CounterSettings.kept_events", self.kept_events, "an integer >= 0")
+        object.__setattr__(self, "kept_events", int(self.kept_events))
 
     @property
     def min_count(self) -> int:

@@ -411,9 +411,9 @@ def scenario_row(design, sc, result, peak_rpm: float, train, limits: CountingLim
     """
     from .counter import quarter_turns_to_output
 
-    _, err = result.output_error(train)
+    # The largest history error comes with the result, so the history may keep only its first entries.
     final_out = abs(float(quarter_turns_to_output(result.final_count_error, train)))
-    max_err = max(float(max(abs(float(e)) for e in err)) if len(err) else 0.0, final_out)
+    max_err = max(abs(float(quarter_turns_to_output(result.max_abs_error_quarter_turns, train))), final_out)
     note = ""
     if result.silent_error_count:
         note = "silent miscounts: the count is wrong with no error flagged"

@@ -33,6 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .counter import (
+    _DECODE_TABLE,
     AMBIGUOUS,
     AmbiguousPolicy,
     CounterMode,
@@ -59,11 +60,13 @@ _RAMP.flags.writeable = False
 
 
 _MIN, _MAX = np.minimum.reduce, np.maximum.reduce
+#: The decoding rule of :mod:`turnkit.counter` as a 4-entry int8 table, indexed by (step mod 4).
+_DECODE_INT8 = _DECODE_TABLE.astype(np.int8)
 _WORK = threading.local()
 
 
-def _work_buffers(n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Three float64 work arrays of at least ``n`` elements, reused by every run in this thread.
+def _work_buffers(n: int) -> tuple[np.ndarray, ...]:
+    """Four float64 work arrays of at least ``n`` elements, reused by every run in this thread.
 
     Reusing them keeps a chunk's large arrays out of the allocator: freeing
     and re-allocating several such arrays per chunk makes the C heap give the
@@ -71,7 +74,7 @@ def _work_buffers(n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """
     bufs = getattr(_WORK, "buffers", None)
     if bufs is None or bufs[0].size < n:
-        bufs = tuple(np.empty(n) for _ in range(3))
+        bufs = tuple(np.empty(n) for _ in range(4))
         _WORK.buffers = bufs
     return bufs
 
@@ -208,18 +211,25 @@ class SimulationResult:
     final_count_error : int
         ``final_count − true_final_count``, quarter-turns.
     ambiguous_events : StepEvents
-        Every ambiguous read (two quarters modulo 4).
+        The first ``settings.kept_events`` ambiguous reads (two quarters modulo 4).
+    ambiguous_count : int
+        Number of ambiguous reads (all of them).
     silent_events : StepEvents
-        Every read decoded as a valid step but wrong (|true step| ≥ 3).
+        The first ``settings.kept_events`` reads decoded as a valid step but
+        wrong (|true step| ≥ 3).
     silent_error_count : int
+        Number of such silent reads (all of them).
     overflow_count : int
     fault_count : int
         Entries into the fault state.
     rehome_count : int
     error_history_times_s, error_history_quarter_turns : ndarray
-        Count error (counter − truth) after every event that changed it; the
-        error is constant between entries except while in fault or power
-        loss (no reads then).
+        Count error (counter − truth) after every event that changed it (the
+        first ``settings.kept_events`` entries); the error is constant between
+        entries except while in fault or power loss (no reads then).
+    max_abs_error_quarter_turns : int
+        Largest magnitude of the count error over every entry of the error
+        history, kept or not (0 without entries), quarter-turns.
     trace_poll_times_s, trace_true_count, trace_decoded_count : ndarray
         Reads inside the trace window (bounded length, for plots).
     trace_time_s, trace_angle_deg : ndarray
@@ -237,6 +247,7 @@ class SimulationResult:
     true_final_count: int
     final_count_error: int
     ambiguous_events: StepEvents
+    ambiguous_count: int
     silent_events: StepEvents
     silent_error_count: int
     overflow_count: int
@@ -244,17 +255,13 @@ class SimulationResult:
     rehome_count: int
     error_history_times_s: np.ndarray
     error_history_quarter_turns: np.ndarray
+    max_abs_error_quarter_turns: int
     trace_poll_times_s: np.ndarray
     trace_true_count: np.ndarray
     trace_decoded_count: np.ndarray
     trace_time_s: np.ndarray
     trace_angle_deg: np.ndarray
     trace_window_s: tuple
-
-    @property
-    def ambiguous_count(self) -> int:
-        """Number of ambiguous reads."""
-        return len(self.ambiguous_events)
 
     def output_error(self, train) -> tuple[np.ndarray, np.ndarray]:
         """Output position error over the timeline, through a gear train.
@@ -277,17 +284,39 @@ class SimulationResult:
 
 
 class _EventLog:
-    __slots__ = ("times", "steps")
+    """Counts every event; keeps the time and true step of the first ``limit`` of them."""
 
-    def __init__(self):
+    __slots__ = ("times", "steps", "total", "room")
+
+    def __init__(self, limit: int):
         self.times: list[np.ndarray] = []
         self.steps: list[np.ndarray] = []
+        self.total = 0
+        self.room = limit
+
+    def add_where(self, times, idx, steps, mask, n):
+        """Add the ``n`` events at ``times[idx[mask]]`` (true steps ``steps[mask]``; no mask: all).
+
+        Only the events that are kept are gathered.
+        """
+        if not self.room:
+            self.total += n
+            return
+        if mask is not None:
+            idx, steps = idx[mask], steps[mask]
+        m = min(n, self.room)
+        self.add(times[idx[:m]], steps[:m])
+        self.total += n - m
 
     def add(self, times, steps):
-        if len(times):
+        n = len(times)
+        self.total += n
+        if n and self.room:
+            m = min(n, self.room)
+            self.room -= m
             # Copies: the reads may be views of reused work arrays.
-            self.times.append(np.array(times, dtype=np.float64))
-            self.steps.append(np.array(steps, dtype=np.int64))
+            self.times.append(np.array(times[:m], dtype=np.float64))
+            self.steps.append(np.array(steps[:m], dtype=np.int64))
 
     def freeze(self) -> StepEvents:
         if not self.times:
@@ -363,17 +392,18 @@ def _any_jitter(schedule) -> bool:
 
 class _Run:
     def __init__(self, profile, schedule, duration, settings, power_loss, rehome, trace_window, trace_max,
-                 chunk, lean=True, edges=None):
+                 chunk, lean=True, edges=None, sparse=True):
         self.profile, self.schedule, self.duration, self.settings = profile, schedule, duration, settings
         self.rehome, self.chunk, self.trace_max = rehome, chunk, trace_max
         self.edges = edges  # None: ideal edges every 90 deg
         self.adaptive = isinstance(schedule, AdaptiveSchedule)
         self.rng = schedule.rng() if _any_jitter(schedule) else None  # only jitter draws from it
-        self.t_buf, self.q_buf, self.d_buf = _work_buffers(chunk)
+        self.t_buf, self.q_buf, self.d_buf, self.a_buf = _work_buffers(chunk)
         self.count_range = (settings.min_count, settings.max_count)
         # Without jitter the adaptive schedule may take the one-burst shortcuts
         # (with jitter the random draws must follow the general path exactly).
         self.lean = self.adaptive and not _any_jitter(schedule) and lean
+        self.sparse = sparse  # reads that cannot overflow decoded at the non-single steps only
         s, e = profile.motion_intervals()
         s, e = merge_intervals(np.clip(s, 0.0, duration), np.clip(e, 0.0, duration))
         self.motion_s, self.motion_e = s, e
@@ -403,11 +433,13 @@ class _Run:
         self.poll_faults = self.move_faults = 0
         self.overflows = 0
         self.t_tracking = self.t_fault = self.t_power = 0.0
-        self.ambiguous, self.silent = _EventLog(), _EventLog()
+        self.ambiguous, self.silent = _EventLog(settings.kept_events), _EventLog(settings.kept_events)
         self.err_t: list[float] = []
         self.err_v: list[int] = []
         self.err_t_arrays: list[np.ndarray] = []
         self.err_v_arrays: list[np.ndarray] = []
+        self.err_room = settings.kept_events
+        self.err_max = 0
         # Adaptive schedule phase.
         self.fast = False
         self.slow_anchor = 0.0
@@ -466,8 +498,26 @@ class _Run:
         return self.settings.start_count + (q - self.q_origin)
 
     def _log_error(self, t, count, q):
-        self.err_t.append(float(t))
-        self.err_v.append(int(count - self._truth(q)))
+        e = int(count - self._truth(q))
+        self.err_max = max(self.err_max, abs(e))
+        if self.err_room:
+            self.err_room -= 1
+            self.err_t.append(float(t))
+            self.err_v.append(e)
+
+    def _log_errors(self, times, errors, idx=None, offset=0):
+        """Error history entries ``errors + offset`` at ``times`` (or at ``times[idx]``).
+
+        ``times`` may view a work array.
+        """
+        if not errors.size:
+            return
+        self.err_max = max(self.err_max, abs(int(_MAX(errors)) + offset), abs(int(_MIN(errors)) + offset))
+        m = min(errors.size, self.err_room)
+        if m:
+            self.err_room -= m
+            self.err_t_arrays.append(np.array(times[:m] if idx is None else times[idx[:m]], dtype=np.float64))
+            self.err_v_arrays.append(np.add(errors[:m], offset, dtype=np.int64))
 
     def _enter_fault(self, t):
         self.fault = True
@@ -625,8 +675,7 @@ class _Run:
         if decoded == AMBIGUOUS or silent_at.size:
             ev = np.append(silent_at, j) if decoded == AMBIGUOUS else silent_at
             counts = np.where(ev == j, self.count + step, self.count)
-            self.err_t_arrays.append(times[ev])
-            self.err_v_arrays.append(counts - self._truth(q[ev].astype(np.int64)))
+            self._log_errors(times[ev], counts - self._truth(q[ev].astype(np.int64)))
         self.count += step
         self.q_ref = int(q[j])
         self.last_change_s = float(times[j])
@@ -862,6 +911,12 @@ class _Run:
             if lo >= c_min and hi <= c_max:
                 self._follow(times, q, d)
                 return None
+        if self.sparse and not stop_on_change and st.ambiguous_policy is not AmbiguousPolicy.FLAG_AND_HOLD:
+            # A read steps at most two quarters as decoded: far from the limits no step can overflow.
+            c_min, c_max = self.count_range
+            if c_min <= self.count - 2 * n and self.count + 2 * n <= c_max:
+                self._sparse(times, q, d)
+                return None
         q, d = q.astype(np.int64, copy=False), d.astype(np.int64, copy=False)
         decoded, amb, silent = decode_index_changes(d)
         flag = st.ambiguous_policy is AmbiguousPolicy.FLAG_AND_HOLD
@@ -918,6 +973,79 @@ class _Run:
             m = (times >= w0) & (times <= w1)
             self._trace(times[m], q[m], self._truth(q[m]) + (self.count - self._truth(self.q_ref)))
 
+    def _sparse(self, times, q, d):
+        """Apply reads that cannot overflow, under guess-last-direction or flag-and-continue.
+
+        A read whose true step is −1, 0 or +1 is decoded right and leaves the
+        count error as it was, so only the other reads (ambiguous or silent)
+        are decoded, through the int8 table, and only at their indices; the
+        guessed direction is looked up for the ambiguous ones alone. The count
+        follows from the quadrant index plus the sum of the error changes.
+        """
+        n = d.size
+        a = np.abs(d, out=self.a_buf[:n]) if d.dtype == np.float64 and n <= self.a_buf.size else np.abs(d)
+        big = np.flatnonzero(a > 1)
+        db = d[big].astype(np.int64)
+        r = (db & 3).astype(np.int8)
+        dec = _DECODE_INT8[r]
+        amb = r == AMBIGUOUS
+        guess = self.settings.ambiguous_policy is AmbiguousPolicy.GUESS_LAST_DIRECTION
+        track = self.adaptive or guess
+        if track:
+            odd = (r & 1).astype(bool)  # silent reads decoded as a single step
+            single = a == 1  # single steps decoded right
+            single[big[odd]] = True
+        steps = dec.astype(np.int64)
+        if amb.any():
+            if guess:
+                steps[amb] = 2 * self._directions(d, single, big[odd], dec[odd], big[amb])
+            else:
+                steps[amb] = 0
+        err = np.cumsum(steps - db)  # count error change up to each of these reads
+        err_before = self.count - self._truth(self.q_ref)
+        if self._traced(times[0], times[-1]):
+            w0, w1 = self.trace_window
+            at = np.flatnonzero((times >= w0) & (times <= w1))
+            qt = q[at].astype(np.int64)
+            k = big.searchsorted(at, side="right") - 1
+            change = np.where(k >= 0, err[np.maximum(k, 0)], 0) if err.size else 0
+            self._trace(times[at], qt, self.count + (qt - self.q_ref) + change)
+        self.count += int(q[-1]) - self.q_ref + (int(err[-1]) if err.size else 0)
+        self.q_ref = int(q[-1])
+        if track:
+            last_single = _last_nonzero(single)
+            if last_single >= 0:
+                self.last_dir = int(_DECODE_TABLE[int(d[last_single]) & 3])
+            moving = _last_nonzero(r)  # decoded as a step (ambiguous included)
+            changed = max(last_single, int(big[moving]) if moving >= 0 else -1)
+            if changed >= 0:
+                self.last_change_s = float(times[changed])
+        if big.size:
+            n_amb = int(np.count_nonzero(amb))
+            self.ambiguous.add_where(times, big, db, amb, n_amb)
+            self.silent.add_where(times, big, db, ~amb if n_amb else None, big.size - n_amb)
+            self._log_errors(times, err, big, err_before)
+
+    def _directions(self, d, single, odd_at, odd_dec, at):
+        """Direction of the last single step before each read ``at`` (earlier reads: ``last_dir`` or +1).
+
+        Directions change rarely, so only the singles that turn the direction
+        round are searched.
+        """
+        one = np.flatnonzero(single)
+        if not one.size:
+            return np.full(at.size, self.last_dir or 1, dtype=np.int64)
+        way = d[one]  # ±1 where decoded right ...
+        if odd_at.size:
+            way[one.searchsorted(odd_at)] = odd_dec  # ... the decoded single step of a silent read
+        turns = np.flatnonzero(way[1:] != way[:-1]) + 1
+        # Each direction holds from a single step to the next turn: cut the reads ``at`` there.
+        cuts = np.empty(turns.size + 3, dtype=np.int64)
+        cuts[0], cuts[-1] = 0, at.size
+        cuts[1:-1] = at.searchsorted(np.concatenate((one[:1], one[turns])))
+        ways = np.concatenate(([self.last_dir or 1], way[:1], way[turns])).astype(np.int64)
+        return ways.repeat(np.diff(cuts))
+
     def _guess(self, decoded, amb):
         single = (decoded == 1) | (decoded == -1)
         idx = np.where(single, np.arange(decoded.size), -1)
@@ -949,8 +1077,7 @@ class _Run:
             if s_.any():
                 self.silent.add(times[seg][s_], d_true[s_])
             ev = a | s_
-            self.err_t_arrays.append(times[seg][ev])
-            self.err_v_arrays.append(path[: j - i][ev] - self._truth(q[seg][ev]))
+            self._log_errors(times[seg][ev], path[: j - i][ev] - self._truth(q[seg][ev]))
         w0, w1 = self.trace_window
         if self.tr_n < self.trace_max and times[i] <= w1 and times[j - 1] >= w0:
             tt = times[seg]
@@ -1088,13 +1215,15 @@ class _Run:
             true_final_count=truth_end,
             final_count_error=int(self.count) - truth_end,
             ambiguous_events=ambiguous,
+            ambiguous_count=self.ambiguous.total,
             silent_events=silent,
-            silent_error_count=len(silent),
+            silent_error_count=self.silent.total,
             overflow_count=self.overflows,
             fault_count=self.faults,
             rehome_count=self.rehomes,
             error_history_times_s=err_t[order],
             error_history_quarter_turns=err_v[order],
+            max_abs_error_quarter_turns=int(self.err_max),
             trace_poll_times_s=cat(self.tr_t, np.float64),
             trace_true_count=cat(self.tr_true, np.int64).astype(np.int64),
             trace_decoded_count=cat(self.tr_count, np.int64),
