@@ -837,7 +837,12 @@ class _Run:
         total = int(first[-1] + n[-1])
         # Pieces: the ranges, also cut at every chunk boundary. A piece's base
         # index plus its position in the chunk gives k.
-        starts = np.union1d(first, np.arange(chunk, total, chunk, dtype=np.int64)) if total > chunk else first
+        if total > chunk:
+            # The sorted union of the two (np.union1d would import numpy.ma on a cold start).
+            starts = np.sort(np.concatenate((first, np.arange(chunk, total, chunk, dtype=np.int64))), kind="stable")
+            starts = starts[np.concatenate(([True], starts[1:] != starts[:-1]))]
+        else:
+            starts = first
         w = np.searchsorted(first, starts, side="right") - 1
         lengths = np.diff(starts, append=total)
         base = (k_lo[w] - first[w] + (starts // chunk) * chunk).astype(np.float64)
