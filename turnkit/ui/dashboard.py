@@ -113,6 +113,7 @@ _CSS = """
 .tk-app .tk-side .tk-card .widget-html-content, .tk-app .tk-side .tk-card div { line-height: 1.3; }
 .tk-app .tk-side .tk-card-label { white-space: nowrap; overflow: hidden; text-overflow: ellipsis; }
 .tk-app .tk-side .tk-card { min-width: 0; flex: 1 1 150px; padding: 2px 8px; margin: 0; }
+.tk-app .tk-side .tk-card .widget-html-content { min-width: 0; }
 .tk-app .tk-side .tk-card-value { font-size: 15px; white-space: nowrap; }
 .tk-app .tk-side .tk-controls { flex: 1 1 auto; min-height: 120px; overflow-y: auto !important;
   overflow-x: hidden !important; }
