@@ -440,11 +440,11 @@ def build_motion(sc: MotionScenario, train, base_dir: Path | None = None) -> tup
                 raise DesignValueError(f"{where}.trace", sc.trace, "a trace file that exists",
                                        hint="trace paths are relative to the design file's folder: pass "
                                             "base_dir=<that folder> to size()")
-            prof = load_trace_csv(path, train=train, at_output=(sc.at == "output"), start_angle_deg=start_deg)
-            t = np.asarray(prof.times_s if hasattr(prof, "times_s") else prof.profile.times_s, dtype=float)
-            ang = np.asarray(prof.angle_deg(t), dtype=float)
-            peak = float(np.max(np.abs(np.diff(ang) / np.diff(t)))) / 6.0 if t.size > 1 else 0.0
-            return prof, float(t[-1]) + 0.5, peak
+            try:
+                st = path.stat()
+            except OSError:  # let the reader say what is wrong with it
+                return _trace_motion(path, train, sc.at == "output", start_deg)
+            return _trace_motion_cached(str(path), st.st_mtime_ns, st.st_size, train, sc.at == "output", start_deg)
     except DesignValueError as exc:
         raise _relabel(exc, where) from None
     raise DesignValueError(f"{where}.kind", sc.kind, "a known motion kind")
@@ -453,6 +453,22 @@ def build_motion(sc: MotionScenario, train, base_dir: Path | None = None) -> tup
 # ---------------------------------------------------------------------------
 # cached pieces (the dashboard re-sizes on every slider move)
 # ---------------------------------------------------------------------------
+
+def _trace_motion(path, train, at_output: bool, start_deg: float) -> tuple[MotionProfile, float, float]:
+    """A recorded trace as (profile, duration_s, peak motor rpm)."""
+    prof = load_trace_csv(path, train=train, at_output=at_output, start_angle_deg=start_deg)
+    t = np.asarray(prof.times_s if hasattr(prof, "times_s") else prof.profile.times_s, dtype=float)
+    ang = np.asarray(prof.angle_deg(t), dtype=float)
+    peak = float(np.max(np.abs(np.diff(ang) / np.diff(t)))) / 6.0 if t.size > 1 else 0.0
+    return prof, float(t[-1]) + 0.5, peak
+
+
+@lru_cache(maxsize=32)
+def _trace_motion_cached(path: str, mtime_ns: int, size_bytes: int, train, at_output: bool, start_deg: float):
+    # Keyed on the file's modification time and size: the dashboard re-sizes on every slider move and
+    # would otherwise read and parse the same trace each time (profiles are immutable, so sharing is safe).
+    return _trace_motion(Path(path), train, at_output, start_deg)
+
 
 @lru_cache(maxsize=64)
 def _sensor_summary(sensor_design, calibrated: bool):

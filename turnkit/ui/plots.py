@@ -353,9 +353,15 @@ def _label_budget_parts(h: FigureHandles, curve: Curve) -> None:
     # The note reads "1: <part> <size> <unit>; 2: ..."; the tick k names the k-th riser.
     parts = re.findall(r"(\d+): (.+?) \S+ \S+(?:; |$)", curve.note)
     axis = h.figure.xaxis[0]
-    axis.ticker = [0] + [int(k) for k, _ in parts]
-    axis.major_label_overrides = {0: "", **{int(k): name for k, name in parts}}
-    axis.major_label_orientation = math.pi / 4
+    ticks = [0] + [int(k) for k, _ in parts]
+    labels = {0: "", **{int(k): name for k, name in parts}}
+    # Assign only what changed: a new ticker makes Bokeh re-walk the whole document on every update.
+    if list(getattr(axis.ticker, "ticks", ()) or ()) != ticks:
+        axis.ticker = ticks
+    if dict(axis.major_label_overrides) != labels:
+        axis.major_label_overrides = labels
+    if axis.major_label_orientation != math.pi / 4:
+        axis.major_label_orientation = math.pi / 4
 
 
 def _same_column(a, b) -> bool:
