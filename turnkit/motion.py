@@ -23,7 +23,6 @@ from __future__ import annotations
 
 import io
 import math
-import os
 import re
 from dataclasses import dataclass, field
 from fractions import Fraction
@@ -859,7 +858,7 @@ def load_trace_csv(source, *, train=None, at_output: bool = False, driven: bool 
     else:
         raise DesignFileError(
             "header", "the second column's name or unit is not understood; use 'angle [deg|rad|rev|turn]', "
-            f"'position [mm|um|m]' or 'speed [rpm|deg/s|rad/s|rev/s|mm/s|m/s|um/s]'", source=name, line=hn)
+            "'position [mm|um|m]' or 'speed [rpm|deg/s|rad/s|rev/s|mm/s|m/s|um/s]'", source=name, line=hn)
     times, values = [], []
     previous = -math.inf
     for n, cells in rows:

@@ -75,7 +75,7 @@ from . import simulation as sim
 from .counter import CounterSettings
 from .design import ActuatorDesign, MotionScenario
 from .errors import DesignValueError, TurnkitWarning
-from .motion import (AtOutput, BackDriveBursts, CoastDown, ConstantSpeed, MotionProfile, TrapezoidMove,
+from .motion import (BackDriveBursts, CoastDown, ConstantSpeed, MotionProfile, TrapezoidMove,
                      Vibration, load_trace_csv, output_speed_to_motor_rpm)
 from .result import (Band, Check, Curve, EquationText, Marker, Scenario, Series, SizingResult, Value)
 from .schedule import AdaptiveSchedule, FixedSchedule
@@ -1948,6 +1948,7 @@ def _accuracy_stage_cached(design: ActuatorDesign, curves: bool) -> _BudgetStage
     return _BudgetStage((tuple(values), tuple(checks), tuple(curve_list), tuple(warns), tuple(assumptions)))
 
 
+@lru_cache(maxsize=64)
 def latch_switch_spread_from_field(design: ActuatorDesign) -> tuple[float, float] | None:
     """Field-derived latch switch-point tolerance and hysteresis of a design (deg, deg), or None.
 
