@@ -247,7 +247,7 @@ def stitched(args, pkgs, sum_s):
     print()
 
 
-# --- adaptive schedule over 10 years (simulation as it is today) ------------------------------
+# --- adaptive schedule over 10 years ---------------------------------------------------------
 
 def adaptive(args, sum_s):
     from turnkit.counter import CounterSettings
@@ -284,7 +284,7 @@ def adaptive(args, sum_s):
 
     numpy_poller()
     ref_s = median_cpu(numpy_poller, 3)
-    print(f"adaptive schedule, 10 years, {bursts.burst_count:,} bursts (simulation as it is today): "
+    print(f"adaptive schedule, 10 years, {bursts.burst_count:,} bursts: "
           f"{res.poll_count:,} reads ({res.fast_poll_count:,} fast)")
     print(f"  adaptive {ad_s:.2f} s = {ad_s / bursts.burst_count * 1e6:.0f} us a burst; "
           f"{ad_s / fixed_s:.1f}x turnkit's fixed schedule on the same bursts ({fixed_s:.3f} s); "

@@ -451,6 +451,68 @@ def test_adaptive_burst_shortcut_gives_the_general_result(seed, top_rpm, longest
                        general_path(profile, sch, 120.0, s, trace_window_s=window))
 
 
+def one_burst_path(profile, sch, duration, settings, *, batch=False, derive=True, **kw):
+    """The same run with bursts taken one at a time (``batch=False``), or batched with every fast
+    read sampled (``derive=False``)."""
+    from turnkit import simulation
+
+    run = simulation._Run(profile, sch, duration, settings, kw.get("power_loss_s", ()), True,  # noqa: SLF001
+                          kw.get("trace_window_s"), 20_000, kw.get("chunk_polls", 1 << 17),
+                          edges=simulation._edge_offsets(kw.get("edge_shifts_deg")), batch=batch)
+    run.derive_fast_reads = derive
+    return run.execute(), run
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.integers(0, 10_000), st.sampled_from([20.0, 100.0, 400.0]), st.floats(1, 2500), st.floats(0, 1),
+       st.sampled_from([(0.1, 0.005), (0.3, 0.002), (0.05, 0.001), (0.1, 0.01)]), st.sampled_from([0.3, 1.0, 2.0, 10.0]),
+       st.sampled_from(["flag_and_hold", "guess_last_direction", "flag_and_continue"]), st.sampled_from([8, 16, 32]),
+       st.sampled_from(["wrap", "saturate", "fault"]), st.sampled_from([None, (5.0, -20.0, 40.0, -3.0)]),
+       st.sampled_from(["none", "drive", "power", "window", "other motion"]), st.sampled_from([1 << 17, 4000]))
+def test_batched_bursts_give_the_one_burst_result(seed, rate, top_rpm, low_share, periods, hold, policy, width,
+                                                  overflow, edges, extra, chunk):
+    # Days of sparse bursts, from barely moving to steps of many quarters a slow read, holds
+    # shorter and longer than the steps, narrow counters near their limits, a unit's own latch
+    # edges, a driven move, a power loss, the trace window in the middle, other motion mixed in
+    # (no speed-derived fast reads then), and batches cut by a small chunk. Batched with the fast
+    # reads derived from the speed, batched with every read sampled, and one burst at a time
+    # must agree bit for bit.
+    days = 2.0
+    bursts = BackDriveBursts(rate, low_share * top_rpm, top_rpm, 0.05, 9.0, days * 86400, seed=seed,
+                             start_angle_deg=float(seed % 360), forward_fraction=0.3 + 0.4 * (seed % 2))
+    profile, kw = bursts, {"edge_shifts_deg": edges, "chunk_polls": chunk}
+    if extra == "drive":
+        profile = CombinedMotion((bursts, TrapezoidMove(7200.0, 300.0, 3000.0, start_s=40_000.0)))
+    elif extra == "other motion":
+        profile = CombinedMotion((bursts, Vibration(60.0, 3.0, start_s=30_000.0, duration_s=5.0)))
+    elif extra == "power":
+        kw["power_loss_s"] = ((50_000.0, 50_030.0),)
+    elif extra == "window":
+        kw["trace_window_s"] = (60_000.0, 90_000.0)
+    slow, fast = periods
+    sch = AdaptiveSchedule(slow, fast, hold, wake_time_s=0, settle_time_s=0, poll_time_s=0)
+    s = CounterSettings(width, ambiguous_policy=policy, overflow_policy=overflow)
+    duration = days * 86400
+    derived, _ = one_burst_path(profile, sch, duration, s, batch=True, **kw)
+    sampled, _ = one_burst_path(profile, sch, duration, s, batch=True, derive=False, **kw)
+    single, _ = one_burst_path(profile, sch, duration, s, **kw)
+    assert_same_result(derived, single)
+    assert_same_result(sampled, single)
+    assert_same_result(simulate(profile, sch, duration, s, **kw), single)
+
+
+def test_batches_take_nearly_every_burst_of_plain_back_drive():
+    # Sparse constant-speed bursts well inside the fast period's bound: all but the first
+    # (the trace window) and the last (the end of the run) go in batches, with the fast reads
+    # derived from the speed; the counts are those of the one-burst path.
+    bursts = BackDriveBursts(10, 100, 1400, 4.0, 13.28, 60 * 86400, seed=1)
+    sch = AdaptiveSchedule(0.1, 0.01, 2.0)
+    s = CounterSettings(16, ambiguous_policy="guess_last_direction")
+    batched, run = one_burst_path(bursts, sch, 60 * 86400, s, batch=True)
+    assert run.batched_bursts >= bursts.burst_count - 2 and run.batching
+    assert_same_result(batched, one_burst_path(bursts, sch, 60 * 86400, s)[0])
+
+
 @settings(max_examples=40, deadline=None)
 @given(st.integers(0, 10_000), st.floats(100, 90_000), st.floats(0.01, 2), st.floats(0.0, 8),
        st.lists(st.floats(-5, 130), min_size=1, max_size=300), st.booleans())

@@ -12,8 +12,12 @@ Cost grows with the amount of motion, not with the length of the timeline:
 * inside motion intervals all poll instants of a batch of intervals are made
   at once, the profile is sampled at all of them in one call, and the
   quadrant changes are decoded and classified with array operations;
-* only rare events (a fault, an overflow, a switch of the adaptive schedule,
-  a driven move, a power loss) are handled one at a time.
+* on an adaptive schedule without jitter, whole bursts (slow reads until one
+  sees a step, fast reads until the hold expires after the burst) are taken
+  many at a time, and the fast reads of a constant-speed burst slow enough for
+  the fast period follow from its speed without being sampled one by one;
+* only rare events (a fault, an overflow, a burst that does not fit that
+  pattern, a driven move, a power loss) are handled one at a time.
 
 A 0.1 % motion duty over ten years at a 10 ms poll period is about 3·10⁷
 decoded polls; see ``benchmarks/bench_counter.py``.
@@ -43,7 +47,7 @@ from .counter import (
     quarter_turns_to_output,
 )
 from .errors import DesignValueError
-from .motion import MotionProfile, merge_intervals
+from .motion import BackDriveBursts, MotionProfile, merge_intervals
 from .schedule import GRID_TOLERANCE, AdaptiveSchedule, FixedSchedule, grid_count, grid_index
 
 __all__ = ["SimulationResult", "StepEvents", "simulate", "quadrant_index", "edge_index", "BOUNDARY_SNAP_QT"]
@@ -350,7 +354,8 @@ def simulate(profile: MotionProfile, schedule, duration_s: float, settings: Coun
     trace_max_polls : int
         At most this many reads are kept for plotting.
     chunk_polls : int, optional
-        Reads decoded per array batch (memory bound). Default 65 536; 32 768
+        Reads decoded per array batch (memory bound). Default 65 536 for a
+        fixed schedule; 131 072 for an adaptive one without jitter; 32 768
         for an adaptive schedule with jitter, whose random draws follow the
         batches (so there the results depend on this value).
     edge_shifts_deg : sequence of 4 floats, optional
@@ -377,7 +382,11 @@ def simulate(profile: MotionProfile, schedule, duration_s: float, settings: Coun
     if not isinstance(settings, CounterSettings):
         raise DesignValueError("simulate.settings", type(settings).__name__, "a CounterSettings")
     if chunk_polls is None:
-        chunk_polls = 1 << 15 if isinstance(schedule, AdaptiveSchedule) and _any_jitter(schedule) else 1 << 16
+        if isinstance(schedule, AdaptiveSchedule):
+            # Without jitter whole bursts are taken many at a time; larger batches save calls.
+            chunk_polls = 1 << 15 if _any_jitter(schedule) else 1 << 17
+        else:
+            chunk_polls = 1 << 16
     if isinstance(chunk_polls, bool) or not isinstance(chunk_polls, int) or chunk_polls < 16:
         raise DesignValueError("simulate.chunk_polls", chunk_polls, "an integer >= 16")
     offsets = _edge_offsets(edge_shifts_deg)
@@ -392,7 +401,7 @@ def _any_jitter(schedule) -> bool:
 
 class _Run:
     def __init__(self, profile, schedule, duration, settings, power_loss, rehome, trace_window, trace_max,
-                 chunk, lean=True, edges=None, sparse=True):
+                 chunk, lean=True, edges=None, sparse=True, batch=True):
         self.profile, self.schedule, self.duration, self.settings = profile, schedule, duration, settings
         self.rehome, self.chunk, self.trace_max = rehome, chunk, trace_max
         self.edges = edges  # None: ideal edges every 90 deg
@@ -404,6 +413,12 @@ class _Run:
         # (with jitter the random draws must follow the general path exactly).
         self.lean = self.adaptive and not _any_jitter(schedule) and lean
         self.sparse = sparse  # reads that cannot overflow decoded at the non-single steps only
+        # Whole bursts of a lean adaptive run taken many at a time (see _burst_batch).
+        self.batching = self.lean and batch
+        self.derive_fast_reads = True  # constant-speed bursts: fast reads follow from the speed
+        self.batched_bursts = self._batch_fails = 0
+        self._batch_skip = -1
+        self._bursts = None
         s, e = profile.motion_intervals()
         s, e = merge_intervals(np.clip(s, 0.0, duration), np.clip(e, 0.0, duration))
         self.motion_s, self.motion_e = s, e
@@ -579,6 +594,11 @@ class _Run:
                 self.slow_anchor = end
                 t = end
             else:
+                if self.batching:
+                    reached = self._burst_batches(t, t_b)
+                    if reached is not None:
+                        t = reached
+                        continue
                 self.change_at = None
                 stop = None if self.lean and self._one_burst_slow(t, t_b) else \
                     self._poll_windows(t, t_b, self.slow_anchor, sch.poll_period_s, "until_change")
@@ -745,6 +765,429 @@ class _Run:
         self.fast_until = until
         self.fast_end = fast_end
         return True
+
+    # ------------------------------------- adaptive: many bursts in one pass
+    # Without jitter, each burst of an adaptive run is usually the same story:
+    # slow reads until one sees a step, fast reads through the burst, and the
+    # hold expiring in the idle gap after it, where the next slow grid is
+    # anchored. The anchors are a chain (each burst's grid starts where the
+    # previous hold expired), so they are found first by scalar arithmetic,
+    # predicting each burst's reads from a straight-line model of its motion
+    # (the burst's own speed for constant-speed bursts). The reads of many
+    # bursts are then made and sampled in one array pass (for constant-speed
+    # bursts slow enough for the fast period, only the slow reads and the two
+    # fast reads around the last step: see _verify_and_apply), and the
+    # prediction is checked against the real reads with the same
+    # floating-point operations the one-burst path uses: which slow read
+    # first sees a step, that no hold expires inside a burst, and where each
+    # hold expires. The bursts before the first one that disagrees are
+    # applied in one call of _sparse; that burst goes the one-burst way, and
+    # the chain goes on from its real end. The results are those of the
+    # one-burst path, bit for bit (tests/test_simulation.py checks them
+    # against it and against the general path).
+
+    def _burst_table(self):
+        """What the batches predict from, per motion interval (Python lists, made once per run).
+
+        Start and end, s; quadrant index at both; the first and the last boundary
+        crossing on the straight line between the two angles (for constant-speed
+        bursts, at the burst's own speed), s; whether a slow read may step four
+        quarters at that speed; whether the fast reads follow from the speed
+        (see :meth:`_verify_and_apply`); the angle at the start, deg, and the speed,
+        deg/s. Also the running sum of a bound on each burst's sampled reads.
+        """
+        if self._bursts is None:
+            S, E = self.motion_s, self.motion_e
+            a_s = np.asarray(self.profile.angle_deg(S), dtype=np.float64)
+            a_e = np.asarray(self.profile.angle_deg(E), dtype=np.float64)
+            q_s, q_e = self._q(S), self._q(E)
+            sch = self.schedule
+            Ts, Tf = sch.poll_period_s, sch.fast_period_s
+            speed = self._constant_speeds()
+            with np.errstate(all="ignore"):
+                slope = (a_e - a_s) / (E - S) if speed is None else speed
+                up = q_e > q_s
+                t1 = S + (self._begins(np.where(up, q_s + 1, q_s)) - a_s) / slope
+                tl = S + (self._begins(np.where(up, q_e, q_e + 1)) - a_s) / slope
+                if self.edges is None:
+                    narrowest = widest = 90.0
+                else:
+                    widths = 360.0 * np.diff(np.append(self.edges, self.edges[0] + 1.0))
+                    narrowest, widest = float(_MIN(widths)), float(_MAX(widths))
+                alias = np.abs(slope) * Ts >= 3.0 * narrowest
+                fine = (np.isfinite(t1) & np.isfinite(tl)) | (q_e == q_s)
+                # Fast reads follow from the speed where each steps less than the narrowest
+                # quadrant and steps come well within the hold (see _verify_and_apply).
+                margin = 1.0 - 1e-6
+                exact = np.abs(slope) * Tf <= margin * narrowest
+                exact &= (widest / np.abs(slope) + 2.0 * Tf) <= margin * sch.hold_s
+                exact &= np.maximum(np.abs(a_s), np.abs(a_e)) < 1e12
+                if speed is None or not self.derive_fast_reads:
+                    exact[:] = False
+                bound = np.where(np.isfinite(t1), (t1 - S) / Ts, 0.0) + 4.0 + \
+                    np.where(exact, 0.0, (E - S) / Tf) + np.where(alias, (E - S) / Ts, 0.0)
+            bound = np.where(np.isfinite(bound), bound, np.inf)
+            self._q_start, self._q_end = q_s, q_e
+            self._bursts = (S.tolist(), E.tolist(), q_s.tolist(), q_e.tolist(), t1.tolist(), tl.tolist(),
+                            alias.tolist(), fine.tolist(), exact, a_s.tolist(), np.asarray(slope).tolist(),
+                            np.concatenate(([0.0], np.cumsum(bound))))
+        return self._bursts
+
+    def _constant_speeds(self):
+        """Each motion interval's speed (deg/s) where the profile is one constant-speed burst there.
+
+        Such a burst's angle is b + v·(t − s) evaluated as fl(fl(fl(t − s)·v) + b), and
+        the angle after it is the same expression at its end; None for other profiles.
+        """
+        p = self.profile
+        if not isinstance(p, BackDriveBursts):
+            return None
+        n = self.motion_s.size
+        if n > p.starts_s.size or not np.array_equal(self.motion_s, p.starts_s[:n]) \
+                or not np.array_equal(self.motion_e[:n - 1], p.ends_s[:n - 1]):
+            return None
+        return p.speeds_deg_per_s[:n].astype(np.float64)
+
+    def _begins(self, m):
+        """Angle where quadrant index ``m`` begins, deg (array)."""
+        if self.edges is None:
+            return (m - BOUNDARY_SNAP_QT) * 90.0
+        return 360.0 * (m // 4 + self.edges[m % 4])
+
+    def _index_scalar(self, a):
+        """Quadrant index of one angle (deg), as :meth:`_q` gives it."""
+        if self.edges is None:
+            return math.floor(a * (1.0 / 90.0) + BOUNDARY_SNAP_QT)
+        turns = a * (1.0 / 360.0)
+        return sum(math.floor(turns - o) for o in self.edges.tolist()) + 3
+
+    def _first_step_read(self, i, k, A):
+        """First slow read from index ``k`` (grid ``A``) predicted to see a step not a multiple of four."""
+        S, E, QS, _, _, _, _, _, _, AS, V, _ = self._bursts
+        Ts = self.schedule.poll_period_s
+        while True:  # ends at the read after the burst at the latest
+            tk = k * Ts + A
+            if tk >= E[i] or (self._index_scalar(AS[i] + V[i] * (tk - S[i])) - QS[i]) & 3:
+                return k
+            k += 1
+
+    def _burst_batches(self, t, t_b):
+        """Apply whole bursts from ``t`` (slow phase) in batches; return the time reached, or None."""
+        reached = None
+        while self.batching:
+            got = self._burst_batch(t, t_b)
+            if got is None:
+                break
+            reached = t = got
+        return reached
+
+    def _burst_batch(self, t, t_b):
+        S, E, QS, QE, T1, TL, ALIAS, FINE, EXACT, AS, V, BOUND = self._burst_table()
+        i0 = int(self.motion_e.searchsorted(t, side="right"))
+        i1 = int(self.motion_s.searchsorted(t_b, side="left"))
+        if i0 + 1 >= i1 or not S[i0] > t or i0 <= self._batch_skip or QS[i0] != self.q_ref:
+            return None
+        sch = self.schedule
+        Ts, Tf, hold = sch.poll_period_s, sch.fast_period_s, sch.hold_s
+        # As many bursts as a bound of their sampled reads lets into one chunk (at least one).
+        i_end = min(int(BOUND.searchsorted(BOUND[i0] + self.chunk, side="right")) - 1, i1 - 1, i0 + 4096)
+        if i_end <= i0:  # this burst alone has more reads than a chunk
+            self._batch_failed(i0)
+            return None
+        # The chain of anchors: each burst's slow grid starts where the hold of the one
+        # before expired (or goes on over a burst with no step). Only the predicted first
+        # slow read that sees a step (k), the last fast read that sees one (j), and the
+        # hold's expiry are worked out here; everything else follows in array form below.
+        floor = math.floor
+        ideal, snap = self.edges is None, BOUNDARY_SNAP_QT
+        A = self.slow_anchor
+        anchors, ks, js, tcs, untils = [], [], [], [], []
+        fail = None
+        # The batch stops before a burst whose index range may take the count near a limit
+        # (the check in _verify_and_apply is the exact one; this saves wasted work).
+        c_min, c_max = self.count_range
+        q_lo, q_hi = c_min - self.count + self.q_ref, c_max - self.count + self.q_ref
+        for i in range(i0, i_end):
+            margin = 64 + 8 * (i - i0)
+            if min(QS[i], QE[i]) - margin < q_lo or max(QS[i], QE[i]) + margin > q_hi:
+                if i == i0:
+                    fail = i
+                break
+            anchors.append(A)
+            if QE[i] == QS[i]:
+                ks.append(0)
+                js.append(0)
+                tcs.append(A)
+                untils.append(A)
+                continue
+            if not FINE[i]:
+                fail = i
+                break
+            k = floor((T1[i] - A) / Ts) + 1
+            if ALIAS[i]:  # a slow read may step four quarters: the first that does not
+                if ideal:
+                    s, a_s, v, e, q_s = S[i], AS[i], V[i], E[i], QS[i]
+                    while True:  # ends at the read after the burst at the latest
+                        tk = k * Ts + A
+                        if tk >= e or (floor((a_s + v * (tk - s)) * (1.0 / 90.0) + snap) - q_s) & 3:
+                            break
+                        k += 1
+                else:
+                    k = self._first_step_read(i, k, A)
+            tc = k * Ts + A
+            if not tc < E[i] and not (QE[i] - QS[i]) & 3:
+                # Every slow read steps a multiple of four quarters: no step is seen, and
+                # the slow phase goes on over this burst.
+                ks.append(0)
+                js.append(0)
+                tcs.append(A)
+                untils.append(A)
+                continue
+            j = floor((TL[i] - tc) / Tf) + 1 if TL[i] > tc and tc < E[i] else 0
+            A = (j * Tf + tc if j else tc) + hold  # = max(tc + hold, c + hold): c is not before tc
+            ks.append(k)
+            js.append(j)
+            tcs.append(tc)
+            untils.append(A)
+        n = len(ks)
+        if n == 0:
+            if fail is not None:
+                self._batch_failed(fail)
+            return None
+        del anchors[n:]
+        tol = GRID_TOLERANCE
+        A = np.array(anchors)
+        kc = np.array(ks, dtype=np.int64)
+        jc = np.array(js, dtype=np.int64)
+        tc = np.array(tcs)
+        until = np.array(untils)
+        has = kc > 0
+        Sx, Ex = self.motion_s[i0:i0 + n], self.motion_e[i0:i0 + n]
+        S_next = self.motion_s[i0 + 1:i0 + n + 1]
+        # Slow reads: the one-burst and the windowed paths' grid ranges, the read after
+        # each burst included; over a burst with no step the phase goes on with the same
+        # grid, never reading an index twice.
+        k_lo = np.maximum(np.floor((Sx - A) / Ts + tol).astype(np.int64) + 1, 1)
+        k_hi = np.minimum(np.floor((Ex - A) / Ts + tol).astype(np.int64) + 1,
+                          np.floor((t_b - A) / Ts + tol).astype(np.int64))
+        if n > 1:
+            carried = np.flatnonzero(~has[:-1]) + 1
+            if carried.size:
+                k_lo[carried] = np.maximum(k_lo[carried], k_hi[carried - 1] + 1)
+        n_slow = np.where(has, kc - k_lo + 1, np.maximum(k_hi - k_lo + 1, 0))
+        bad = has & ((kc < k_lo) | (kc > k_hi))
+        # Fast reads: indices 1, 2, … from tc through the first read after the burst.
+        fast = has & (tc < Ex)
+        kf_lo = np.where(tc >= Sx, 1, np.maximum(np.floor((Sx - tc) / Tf + tol).astype(np.int64) + 1, 1))
+        kf_hi = np.minimum(np.floor((Ex - tc) / Tf + tol).astype(np.int64) + 1,
+                           np.floor((t_b - tc) / Tf + tol).astype(np.int64))
+        bad |= fast & ((kf_lo != 1) | (kf_hi < kf_lo) | (until < kf_hi * Tf + tc) | (jc > kf_hi))
+        n_fast = np.where(fast, kf_hi, 0)
+        exact = fast & EXACT[i0:i0 + n]
+        # The hold must expire before the next burst; the next burst must start where this one ends.
+        bad |= has & ~(until < S_next)
+        bad[1:] |= self._q_start[i0 + 1:i0 + n] != self._q_end[i0:i0 + n - 1]
+        if self.tr_n < self.trace_max:
+            w0, w1 = self.trace_window
+            bad |= (Sx - Ts <= w1) & (Ex + Ts >= w0)
+        bad |= np.cumsum(n_slow + np.where(exact, 2, n_fast)) > self.chunk
+        cut = np.flatnonzero(bad)
+        if cut.size:
+            n = int(cut[0])
+            fail = i0 + n if fail is None else min(fail, i0 + n)
+        if not has[:n].any():
+            if fail is not None:
+                self._batch_failed(fail)
+            return None
+        m, agreed = self._verify_and_apply(i0, A[:n], k_lo[:n], n_slow[:n], has[:n], tc[:n], n_fast[:n],
+                                           until[:n], exact[:n], jc[:n])
+        if agreed < n:
+            fail = i0 + agreed if fail is None else min(fail, i0 + agreed)
+        if fail is not None:
+            self._batch_failed(fail)
+        if m is None:
+            return None
+        self.batched_bursts += m + 1
+        # Polls on each grid, as the one-burst path adds them up (grid_count).
+        done = np.flatnonzero(has[:m + 1])
+        phase_start = np.concatenate(([t], until[done[:-1]]))
+        a, c, u = A[done], tc[done], until[done]
+        lo = np.maximum(np.floor((phase_start - a) / Ts + tol), 0)
+        self.slow_polls += int(np.sum(np.where(c <= phase_start, 0,
+                                               np.maximum(np.floor((c - a) / Ts + tol) - lo, 0))))
+        self.fast_polls += int(np.sum(np.where(u <= c, 0, np.maximum(np.floor((u - c) / Tf + tol), 0))))
+        self.fast = False
+        end = float(until[m])
+        self.slow_anchor = self.fast_until = end
+        return end
+
+    def _batch_failed(self, i):
+        """Burst ``i`` goes the one-burst way; batching stops for good if it fails often."""
+        self._batch_skip = max(self._batch_skip, i)
+        self._batch_fails += 1
+        if self._batch_fails >= 16 and 4 * self._batch_fails > self.batched_bursts:
+            self.batching = False
+
+    def _verify_and_apply(self, i0, A, k_lo, n_slow, has, tc, n_fast, until, exact, jc):
+        """Make the predicted reads of a batch of bursts, check them, apply the bursts that agree.
+
+        Per burst (the first is motion interval ``i0``): slow grid anchor ``A`` (s),
+        first slow index and number of slow reads; whether a read sees a step
+        (``has``: the last slow read does); fast grid anchor ``tc`` (s) and number of
+        fast reads (indices 1, 2, …); predicted hold expiry ``until`` (s); whether the
+        fast reads follow from the speed (``exact``) and the predicted index of the
+        last fast read that sees a step (``jc``, 0: none).
+
+        The slow reads (a few a burst) are made and sampled. So are the fast reads of
+        the bursts that are not ``exact``. Those of an ``exact`` burst are not: its
+        angle is fl(fl(fl(t − s)·v) + b), and every step of that is monotone in t,
+        so the index is monotone over the burst's reads; a speed with less than the
+        narrowest quadrant per fast period makes each read step at most one quarter
+        (decoded right, no event), and one that crosses the widest quadrant within
+        the hold less two fast periods leaves no gap longer than the hold between
+        reads that see a step. What remains is which read sees the last step: the
+        predicted one and the read before it are sampled.
+
+        Returns the index of the last burst applied (None: none) and the number of
+        bursts that agreed with the prediction.
+        """
+        sch = self.schedule
+        Ts, Tf, hold = sch.poll_period_s, sch.fast_period_s, sch.hold_s
+        nb = has.size
+        ok = np.ones(nb, dtype=bool)
+        q_end = self._q_end[i0:i0 + nb].astype(np.float64)
+        q_start = self._q_start[i0:i0 + nb].astype(np.float64)
+        n_eval = np.where(exact, 0, n_fast)
+        s_at = np.cumsum(n_slow) - n_slow
+        f_at = np.cumsum(n_eval) - n_eval
+        ns, nf = int(s_at[-1] + n_slow[-1]), int(f_at[-1] + n_eval[-1])
+        # Read times exactly as the one-burst path makes them: float(k) * period + anchor.
+        t_s = np.repeat((k_lo - s_at).astype(np.float64), n_slow)
+        t_s += _ramp(ns)
+        t_s *= Ts
+        t_s += np.repeat(A, n_slow)
+        q_s = self._read_index(t_s, np.empty(ns)) if ns else t_s
+        t_f = np.add(_ramp(nf), np.repeat((1 - f_at).astype(np.float64), n_eval), out=self.t_buf[:nf])
+        t_f *= Tf
+        t_f += np.repeat(tc, n_eval)
+        q_f = self._read_index(t_f, self.q_buf[:nf]) if nf else t_f
+        # Exact bursts: the predicted last read that sees a step and the read before it.
+        xb = np.flatnonzero(exact & (jc > 0))
+        if xb.size:
+            t_x = np.empty(2 * xb.size)
+            t_x[0::2] = (jc[xb] - 1).astype(np.float64) * Tf + tc[xb]
+            t_x[1::2] = jc[xb].astype(np.float64) * Tf + tc[xb]
+            q_x = self._read_index(t_x, np.empty(t_x.size))
+            ok[xb] &= (q_x[1::2] == q_end[xb]) & (q_x[0::2] != q_end[xb])
+        # The index before each burst's slow reads: the last read of the bursts before.
+        s_last, f_last = s_at + n_slow - 1, f_at + n_eval - 1
+        last_q = np.where(n_slow > 0, q_s[np.clip(s_last, 0, max(ns - 1, 0))] if ns else np.nan, np.nan)
+        last_q = np.where(exact, q_end, last_q)
+        if nf:
+            last_q = np.where(n_eval > 0, q_f[np.clip(f_last, 0, nf - 1)], last_q)
+        before = np.concatenate(([float(self.q_ref)], last_q[:-1]))
+        gaps = np.isnan(before)
+        if gaps.any():  # a burst with no reads of its own: carry the index forward
+            valid = np.where(~gaps, np.arange(nb), 0)
+            before = before[np.maximum.accumulate(valid)]
+        d_s = np.empty(ns)
+        if ns:
+            d_s[1:] = q_s[1:] - q_s[:-1]
+            w = n_slow > 0
+            d_s[s_at[w]] = q_s[s_at[w]] - before[w]
+        d_f = self.d_buf[:nf]
+        fb = np.flatnonzero(n_eval)
+        if nf:
+            np.subtract(q_f[1:], q_f[:-1], out=d_f[1:])
+            d_f[f_at[fb]] = q_f[f_at[fb]] - q_s[s_last[fb]]
+        # Slow reads: no step (modulo four quarters) before the last one, which sees one
+        # exactly where predicted.
+        di = d_s.astype(np.int64)
+        steps = np.cumsum(np.concatenate(([0], (di & 3) != 0)))
+        seen_before = steps[np.maximum(s_last, s_at)] - steps[s_at]
+        last_sees = np.where(n_slow > 0, steps[s_at + n_slow] - steps[np.maximum(s_last, s_at)], 0)
+        ok &= (seen_before == 0) & (last_sees == has)
+        # An exact burst with no fast step predicted: its slow read already sees the end index.
+        ok &= ~(exact & (jc == 0)) | (q_s[np.clip(s_last, 0, max(ns - 1, 0))] == q_end if ns else False)
+        if self.settings.ambiguous_policy is AmbiguousPolicy.FLAG_AND_HOLD:
+            amb = np.flatnonzero((di & 3) == 2)
+            if amb.size:  # a fault: the one-burst way handles it
+                ok[int(s_at.searchsorted(amb[0], side="right")) - 1:] = False
+        # Sampled fast reads: every one at most one step (else the one-burst way decodes them).
+        if nf and (_MIN(d_f) < -1 or _MAX(d_f) > 1):
+            big = np.flatnonzero(np.abs(d_f) > 1)
+            ok[int(f_at.searchsorted(big[0], side="right")) - 1:] = False
+        # The hold expires hold_s after the last read that saw a step, as predicted.
+        c_last = tc.copy()
+        rep = np.full(nb, -1)
+        if fb.size:
+            width = 64
+            idx = f_last[fb, None] - np.arange(width - 1, -1, -1)
+            inside = idx >= f_at[fb, None]
+            moved = (d_f[np.maximum(idx, 0)] != 0.0) & inside
+            seen = moved.any(axis=1)
+            pos = idx[np.arange(fb.size), width - 1 - np.argmax(moved[:, ::-1], axis=1)]
+            rep[fb[seen]] = pos[seen]
+            for b in fb[~seen & (n_eval[fb] > width)].tolist():
+                last = _last_nonzero(d_f[f_at[b]:f_at[b] + n_eval[b]])
+                if last >= 0:
+                    rep[b] = f_at[b] + last
+            got = rep >= 0
+            c_last[got] = t_f[rep[got]]
+        if xb.size:
+            c_last[xb] = t_x[1::2]
+        ok &= ~has | (c_last + hold == until)
+        # No hold expires inside a sampled burst: no gap longer than the hold between reads
+        # that see a step. Blocks of `span` reads each with a step rule that out where
+        # 2·span reads fit in the hold; bursts with a block without one are checked read
+        # by read, as the one-burst path does.
+        span = int(hold / Tf / 2.0) - 1
+        if fb.size:
+            if span >= 4 and nf >= span:
+                # A block with a step changes the index unless it also steps back: blocks whose
+                # index ends where it began are the only ones that may have none.
+                ends = q_f[span - 1:nf - nf % span:span]
+                starts = np.flatnonzero(ends == np.concatenate(([q_f[0] - d_f[0]], ends[:-1]))) * span
+                look = np.unique(np.concatenate((f_at.searchsorted(starts, side="right"),
+                                                 f_at.searchsorted(starts + span - 1, side="right"))) - 1)
+            else:
+                look = fb
+            for b in look[n_eval[look] > 0].tolist():
+                seg = slice(f_at[b], f_at[b] + n_eval[b])
+                c = t_f[seg][np.flatnonzero(d_f[seg])]
+                if c.size and (c[0] > tc[b] + hold or np.any(c[1:] > c[:-1] + hold)):
+                    ok[b] = False
+        # The counter's range: no read may take the count past a limit. Within burst b the
+        # index stays within exc of where it was before the burst (slow steps, one quarter a
+        # sampled fast read, the burst's own travel), and the count error within the
+        # largest error the slow reads can add up to it (two quarters a read beyond the step).
+        slow_sum = np.concatenate(([0.0], np.cumsum(np.abs(d_s))))
+        moved_slow = slow_sum[s_at + n_slow] - slow_sum[s_at]
+        reach = np.cumsum(moved_slow + 2.0 * n_slow)
+        exc = 2.0 * moved_slow + np.where(exact, 0, n_eval) + np.abs(q_end - before)
+        c_min, c_max = self.count_range
+        base = self.count - self.q_ref + before
+        ok &= np.logical_and.accumulate((base + exc + reach <= c_max) & (base - exc - reach >= c_min))
+        bad = np.flatnonzero(~ok)
+        agreed = int(bad[0]) if bad.size else nb
+        done = np.flatnonzero(has[:agreed])
+        if not done.size:
+            return None, agreed
+        m = int(done[-1])
+        # The reads that can change the count error or the guessed direction: the slow
+        # reads and each burst's last fast read that saw a step (every other fast read
+        # steps by at most one and is decoded right).
+        n_s = int(s_at[m] + n_slow[m])
+        r = rep[:m + 1]
+        r = r[r >= 0]
+        x = xb[xb <= m]
+        times = np.concatenate((t_s[:n_s], t_f[r], t_x[1:2 * x.size:2] if x.size else t_s[:0]))
+        order = np.argsort(times, kind="stable")
+        times = times[order]
+        q = np.concatenate((q_s[:n_s], q_f[r], q_end[x]))[order]
+        d = np.concatenate((d_s[:n_s], d_f[r], q_end[x] - q_x[0:2 * x.size:2] if x.size else d_s[:0]))[order]
+        self._sparse(times, q, d)
+        return m, agreed
 
     def _poll_windows(self, t_a, t_b, anchor, period, mode):
         """Decode the grid polls ``anchor + k*period`` inside motion intervals in (t_a, t_b].
