@@ -882,10 +882,12 @@ class _Run:
         return reached
 
     def _burst_batch(self, t, t_b):
-        S, E, QS, QE, T1, TL, ALIAS, FINE, EXACT, AS, V, BOUND = self._burst_table()
         i0 = int(self.motion_e.searchsorted(t, side="right"))
         i1 = int(self.motion_s.searchsorted(t_b, side="left"))
-        if i0 + 1 >= i1 or not S[i0] > t or i0 <= self._batch_skip or QS[i0] != self.q_ref:
+        if i0 + 1 >= i1 or i0 <= self._batch_skip:
+            return None
+        S, E, QS, QE, T1, TL, ALIAS, FINE, EXACT, AS, V, BOUND = self._burst_table()
+        if not S[i0] > t or QS[i0] != self.q_ref:
             return None
         sch = self.schedule
         Ts, Tf, hold = sch.poll_period_s, sch.fast_period_s, sch.hold_s
