@@ -501,6 +501,26 @@ def test_batched_bursts_give_the_one_burst_result(seed, rate, top_rpm, low_share
     assert_same_result(simulate(profile, sch, duration, s, **kw), single)
 
 
+@pytest.mark.parametrize("share", [0.99, 0.9989, 0.9991, 1.0, 1.01])
+@pytest.mark.parametrize("start_s", [0.0, 3.0e9])
+def test_fast_reads_derived_from_the_speed_match_sampled_ones_near_the_one_step_bound(share, start_s):
+    # Constant-speed bursts at and around one quarter per fast read, a century into the
+    # timeline (read times then round at about 5e-7 s): derived only with room to spare
+    # (the 0.1 % margin), and then the same as sampling every fast read.
+    fast = 0.005
+    rpm = share * 90.0 / fast / 6.0
+    bursts = BackDriveBursts(300, rpm, rpm, 0.5, 6.0, 86400.0, seed=4, start_s=start_s, start_angle_deg=37.0)
+    sch = AdaptiveSchedule(0.1, fast, 2.0, wake_time_s=0, settle_time_s=0, poll_time_s=0)
+    s = CounterSettings(32, ambiguous_policy="guess_last_direction")
+    duration = start_s + 86400.0
+    derived, run = one_burst_path(bursts, sch, duration, s, batch=True)
+    sampled, _ = one_burst_path(bursts, sch, duration, s, batch=True, derive=False)
+    assert_same_result(derived, sampled)
+    assert_same_result(derived, one_burst_path(bursts, sch, duration, s)[0])
+    derived_any = bool(np.any(run._bursts[8]))  # noqa: SLF001 - which path was taken
+    assert derived_any if share <= 0.99 else (not derived_any if share > 0.999 else True)
+
+
 def test_batches_take_nearly_every_burst_of_plain_back_drive():
     # Sparse constant-speed bursts well inside the fast period's bound: all but the first
     # (the trace window) and the last (the end of the run) go in batches, with the fast reads

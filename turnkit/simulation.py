@@ -817,11 +817,14 @@ class _Run:
                 alias = np.abs(slope) * Ts >= 3.0 * narrowest
                 fine = (np.isfinite(t1) & np.isfinite(tl)) | (q_e == q_s)
                 # Fast reads follow from the speed where each steps less than the narrowest
-                # quadrant and steps come well within the hold (see _verify_and_apply).
-                margin = 1.0 - 1e-6
-                exact = np.abs(slope) * Tf <= margin * narrowest
-                exact &= (widest / np.abs(slope) + 2.0 * Tf) <= margin * sch.hold_s
-                exact &= np.maximum(np.abs(a_s), np.abs(a_e)) < 1e12
+                # quadrant and steps come well within the hold (see _verify_and_apply), with
+                # room for the rounding of read times (a few ulp of the time) and angles.
+                speed_abs, margin = np.abs(slope), 1.0 - 1e-3
+                largest = np.maximum(np.abs(a_s), np.abs(a_e))
+                slack_deg = 8.0 * np.spacing(largest) + 8.0 * speed_abs * np.spacing(E)
+                exact = speed_abs * Tf + slack_deg <= margin * narrowest
+                exact &= (widest + slack_deg) / speed_abs + 2.0 * Tf + 8.0 * np.spacing(E) <= margin * sch.hold_s
+                exact &= largest < 1e12
                 if speed is None or not self.derive_fast_reads:
                     exact[:] = False
                 bound = np.where(np.isfinite(t1), (t1 - S) / Ts, 0.0) + 4.0 + \
@@ -1047,8 +1050,10 @@ class _Run:
         narrowest quadrant per fast period makes each read step at most one quarter
         (decoded right, no event), and one that crosses the widest quadrant within
         the hold less two fast periods leaves no gap longer than the hold between
-        reads that see a step. What remains is which read sees the last step: the
-        predicted one and the read before it are sampled.
+        reads that see a step (both with 0.1 % to spare, and room for the rounding
+        of the read times and angles: see :meth:`_burst_table`). What remains is
+        which read sees the last step: the predicted one and the read before it
+        are sampled.
 
         Returns the index of the last burst applied (None: none) and the number of
         bursts that agreed with the prediction.
