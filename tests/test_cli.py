@@ -333,7 +333,7 @@ def test_lab_adds_allow_root_only_when_running_as_root(monkeypatch):
 
 def test_lab_returns_jupyterlabs_exit_status(monkeypatch, tmp_path):
     monkeypatch.chdir(tmp_path)
-    monkeypatch.setattr(cli.subprocess, "Popen", lambda command: _Exited(3))
+    monkeypatch.setattr(subprocess, "Popen", lambda command: _Exited(3))
     assert main(["lab"]) == 3
 
 

@@ -118,3 +118,19 @@ def test_reading_and_sizing_the_demos_loads_neither_sympy_nor_pint():
             "print('sympy' in sys.modules, 'pint' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False False"
+
+
+def test_a_trace_is_read_once_for_the_work_estimate_and_the_simulation():
+    crane = load_design(DEMO / "camera-crane-joint.toml")
+    sizing._trace_motion_cached.cache_clear()
+    sizing._scenario_motion.cache_clear()
+    sizing._simulate_scenario.cache_clear()
+    first = size(crane, base_dir=DEMO, curves=False)
+    assert sizing._trace_motion_cached.cache_info().misses == 1
+    # The same trace seen through another gear train is read again: its motor angles differ.
+    belt = crane.gear_train[0]
+    longer = replace(crane, gear_train=(replace(belt, teeth_driven=belt.teeth_driven + 3),) + crane.gear_train[1:])
+    second = size(longer, base_dir=DEMO, curves=False)
+    assert sizing._trace_motion_cached.cache_info().misses == 2
+    swing = [s for s in first.scenarios if s.kind == "trace"]
+    assert swing and swing != [s for s in second.scenarios if s.kind == "trace"]

@@ -25,15 +25,13 @@ import importlib.util
 import json
 import os
 import re
-import shlex
-import shutil
-import signal
-import subprocess
 import sys
-import urllib.parse
 import warnings
 from pathlib import Path
 from typing import Sequence
+
+# shlex, shutil, signal, subprocess and urllib.parse are imported by the subcommands that use
+# them: ``turnkit size`` is run often and should not pay for starting JupyterLab.
 
 from . import __version__
 from .errors import DesignFileError, DesignValueError, TurnkitError, TurnkitWarning
@@ -256,6 +254,8 @@ def _new(name: str, folder: Path) -> int:
         for path in written:  # all or nothing
             path.unlink(missing_ok=True)
         raise
+    import shlex
+
     print(f"wrote {design_path}\nwrote {notebook_path}\n"
           f"next: edit {design_path}, then `turnkit size {shlex.quote(str(design_path))}` "
           f"or `turnkit lab {shlex.quote(str(notebook_path))}`")
@@ -412,6 +412,8 @@ def lab_command(notebook: Path | None, extra: Sequence[str] = (), root_dir: Path
     ``root_dir`` becomes the server's root folder (what Lab's file browser
     shows) unless ``extra`` already chooses one.
     """
+    import urllib.parse
+
     command = [sys.executable, "-m", "jupyterlab"]
     if notebook is not None:
         command.append(str(notebook))
@@ -451,6 +453,8 @@ def copy_demo(target: Path) -> list[Path]:
     Files already in ``target`` are kept as they are (they may hold the
     user's own edits); only missing ones are copied.
     """
+    import shutil
+
     root = demo_checkout()
     if root is None:
         raise TurnkitError("no turnkit checkout to copy the demo from")
@@ -510,6 +514,9 @@ def _run_forwarding_signals(command: list[str]) -> int:
 
     Returns its exit status (128 + the signal number when a signal ended it).
     """
+    import signal
+    import subprocess
+
     process = subprocess.Popen(command)
 
     def forward(signum, _frame) -> None:

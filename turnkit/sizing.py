@@ -499,6 +499,10 @@ class _Kinematics:
     output_unit: str
 
 
+def _kinematics_of(train) -> _Kinematics:
+    return _Kinematics(train.travel_per_motor_turn, train.direction, train.output_unit)
+
+
 @lru_cache(maxsize=512)
 def _simulate_scenario(sc: MotionScenario, kinematics: _Kinematics, schedule, settings, base_dir: str | None,
                        edges: tuple | None = None):
@@ -839,8 +843,7 @@ def _mechanics(stages: tuple) -> Mechanics:
         out.cautions.append(_BACKDRIVE_CAUTION)
     elif any(isinstance(s, (gears.WormStage, gears.LeadScrew)) for s in train.stages):
         out.cautions.append(_CREEP_CAUTION)
-    return Mechanics(out.done(), stages, train, unit,
-                     _Kinematics(train.travel_per_motor_turn, train.direction, train.output_unit))
+    return Mechanics(out.done(), stages, train, unit, _kinematics_of(train))
 
 
 def counter_range_stage(design: ActuatorDesign, mech: Mechanics) -> CounterRange:
@@ -1519,7 +1522,9 @@ def _scenario_motion(sc: MotionScenario, stages: tuple, base_dir: str | None) ->
     if sc.kind == "bursts":
         count, mean_s = _burst_count(sc, train)
         return min(count * mean_s, sc.duration_s), count, count
-    profile, duration, _ = build_motion(sc, train, Path(base_dir) if base_dir is not None else None)
+    # Built from the train's kinematics, as the simulation builds it, so that a trace file read here
+    # is the one the simulation reuses (its cache is keyed on what the motion reads of the train).
+    profile, duration, _ = build_motion(sc, _kinematics_of(train), Path(base_dir) if base_dir is not None else None)
     starts, ends = profile.motion_intervals()
     if not np.size(starts):
         return 0.0, 0.0, 0.0
@@ -2252,7 +2257,7 @@ def _scenario_peak_to_peak(sc: MotionScenario, train) -> float | None:
 @lru_cache(maxsize=256)
 def _scenario_peak(sc: MotionScenario, stages: tuple, base_dir: str | None) -> float:
     train = _train_cached(stages)[0]
-    return float(build_motion(sc, train, Path(base_dir) if base_dir else None)[2])
+    return float(build_motion(sc, _kinematics_of(train), Path(base_dir) if base_dir else None)[2])
 
 
 def _scenario_peaks(design: ActuatorDesign, stages: tuple, base_dir: str | None) -> tuple:
