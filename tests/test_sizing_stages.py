@@ -8,6 +8,7 @@ import sys
 from dataclasses import replace
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from turnkit import sizing
@@ -134,3 +135,43 @@ def test_a_trace_is_read_once_for_the_work_estimate_and_the_simulation():
     assert sizing._trace_motion_cached.cache_info().misses == 2
     swing = [s for s in first.scenarios if s.kind == "trace"]
     assert swing and swing != [s for s in second.scenarios if s.kind == "trace"]
+
+
+def test_the_magnet_fields_are_worked_out_again_only_when_an_input_they_read_changes():
+    crane = load_design(DEMO / "camera-crane-joint.toml")
+    temps = sizing._service_temperatures_degC(crane)
+    state = sizing._field_state(crane, temps, crane.magnet.airgap_mm, 0.2)
+    # Backlash, the stated latch tolerance and the battery are not read: the same state comes back.
+    unread = replace(crane, latches=replace(crane.latches, switch_point_tolerance_deg=7.0),
+                     gear_train=(replace(crane.gear_train[0], backlash_deg=0.9),) + crane.gear_train[1:])
+    assert sizing._field_state(unread, temps, crane.magnet.airgap_mm, 0.2) is state
+    # Each input it reads gives fields worked out anew, and different where the input matters.
+    farther = sizing._field_state(crane, temps, crane.magnet.airgap_mm + 0.5, 0.2)
+    assert np.all(farther["b_sensor"] < state["b_sensor"]) and np.all(farther["b_latch"] < state["b_latch"])
+    weaker = replace(crane, magnet=replace(crane.magnet, remanence_mT=0.8 * sizing._magnet_numbers(crane.magnet)[0]))
+    assert np.all(sizing._field_state(weaker, temps, crane.magnet.airgap_mm, 0.2)["b_sensor"] < state["b_sensor"])
+    stricter = replace(crane, sensor=replace(crane.sensor, minimum_field_mT=float(np.min(state["b_sensor"])) + 1.0))
+    assert state["sensor_ok"] and not sizing._field_state(stricter, temps, crane.magnet.airgap_mm, 0.2)["sensor_ok"]
+    later = replace(crane, latches=replace(crane.latches, operate_field_mT=crane.latches.operate_field_mT * 1.5))
+    assert sizing._field_state(later, temps, crane.magnet.airgap_mm, 0.2)["switching"].hysteresis_deg != \
+        state["switching"].hysteresis_deg
+    # The sensor error enters the re-sync guard (count keeping is described here).
+    assert sizing._field_state(crane, temps, crane.magnet.airgap_mm, 0.5)["resync"].guard_deg == \
+        pytest.approx(state["resync"].guard_deg + 0.3)
+    with pytest.raises(ValueError):
+        state["b_sensor"][0] = 0.0  # shared between sizings: read-only
+
+
+def test_the_latch_switch_spread_is_worked_out_again_only_when_an_input_it_reads_changes():
+    crane = load_design(DEMO / "camera-crane-joint.toml")
+    sizing._switch_spread.cache_clear()
+    spread = sizing.latch_switch_spread_from_field(crane)
+    unread = replace(crane, latches=replace(crane.latches, switch_point_tolerance_deg=7.0),
+                     battery=replace(crane.battery, capacity_mAh=123.0))
+    assert sizing.latch_switch_spread_from_field(unread) == spread
+    assert sizing._switch_spread.cache_info().misses == 1
+    for changed in (replace(crane, latches=replace(crane.latches, operate_field_mT=crane.latches.operate_field_mT * 1.2)),
+                    replace(crane, magnet=replace(crane.magnet, airgap_mm=crane.magnet.airgap_mm + 0.4)),
+                    replace(crane, requirements=replace(crane.requirements, service_temperature_high_degC=85.0))):
+        assert sizing.latch_switch_spread_from_field(changed) != spread
+    assert sizing._switch_spread.cache_info().misses == 4

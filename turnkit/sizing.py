@@ -1639,32 +1639,60 @@ def _magnet_numbers(mag):
             grade)
 
 
-def _field_state(design: ActuatorDesign, temps: np.ndarray, airgap_mm: float, fine_error_deg: float) -> dict:
-    """Fields at the sensor and the latches over temperature, and whether each field check passes."""
-    from . import countkeeping, magnet as mag_mod
+def _field_state(design: ActuatorDesign, temps: np.ndarray, airgap_mm: float, fine_error_deg: float):
+    """Fields at the sensor and the latches over temperature, and whether each field check passes.
 
-    mag = design.magnet
+    A read-only mapping, cached on exactly what it reads (see :func:`_fields`): a tolerance run that
+    draws backlash, latch tolerances or battery figures works the fields out once.
+    """
+    lat = design.latches
+    thresholds = (lat.operate_field_mT, lat.release_field_mT, lat.threshold_spread_mT, lat.threshold_drift_pct_per_K)
+    # The sensor error enters only the re-sync check, which needs count keeping.
+    resync_error = float(fine_error_deg) if design.count_memory is not None else None
+    return _fields(design.magnet, tuple(temps.tolist()), float(airgap_mm), design.sensor.minimum_field_mT,
+                   thresholds, resync_error)
+
+
+def _latch_peak_field(mag, temps: np.ndarray, airgap_mm: float) -> np.ndarray:
+    """Peak field at a latch over temperature (mT)."""
+    from . import magnet as mag_mod
+
     br20, drift, _, _ = _magnet_numbers(mag)
     br = np.atleast_1d(mag_mod.remanence_mT(br20, drift, temps))
     latch_r = mag.latch_radius_mm if mag.latch_radius_mm is not None else 0.5 * mag.diameter_mm
+    return np.atleast_1d(mag_mod.latch_peak_field_mT(br, mag.diameter_mm, mag.thickness_mm, airgap_mm, latch_r))
+
+
+@lru_cache(maxsize=256)
+def _fields(mag, temps: tuple, airgap_mm: float, minimum_field_mT: float, thresholds: tuple,
+            resync_error_deg: float | None) -> MappingProxyType:
+    """:func:`_field_state` from the [magnet] section, the temperatures (degC), the airgap (mm), the sensor's
+    minimum field (mT), the latches' (operate mT, release mT, threshold spread mT, threshold drift %/K) and
+    the sensor error for the re-sync check (deg; None without count keeping)."""
+    from . import countkeeping, magnet as mag_mod
+
+    temps = np.array(temps)
+    br20, drift, _, _ = _magnet_numbers(mag)
+    br = np.atleast_1d(mag_mod.remanence_mT(br20, drift, temps))
     b_sensor = np.atleast_1d(mag_mod.sensor_field_mT(br, mag.diameter_mm, mag.thickness_mm, airgap_mm))
-    b_latch = np.atleast_1d(mag_mod.latch_peak_field_mT(br, mag.diameter_mm, mag.thickness_mm, airgap_mm, latch_r))
+    b_latch = _latch_peak_field(mag, temps, airgap_mm)
+    b_sensor.flags.writeable = False
+    b_latch.flags.writeable = False
     state = {"b_sensor": b_sensor, "b_latch": b_latch, "switching": None,
-             "sensor_ok": bool(np.min(b_sensor) >= design.sensor.minimum_field_mT)}
-    lat = design.latches
+             "sensor_ok": bool(np.min(b_sensor) >= minimum_field_mT)}
+    operate, release, spread, threshold_drift = thresholds
     passes = [state["sensor_ok"]]
-    if lat.operate_field_mT is not None:
-        sw = mag_mod.latch_switching(b_latch, temps, operate_field_mT=lat.operate_field_mT,
-                                     release_field_mT=lat.release_field_mT, threshold_spread_mT=lat.threshold_spread_mT,
-                                     threshold_drift_pct_per_K=lat.threshold_drift_pct_per_K)
+    if operate is not None:
+        sw = mag_mod.latch_switching(b_latch, temps, operate_field_mT=operate, release_field_mT=release,
+                                     threshold_spread_mT=spread, threshold_drift_pct_per_K=threshold_drift)
         state["switching"] = sw
         passes += [sw.operates, sw.releases]
-        if design.count_memory is not None:
-            rs = countkeeping.resync(sw.hysteresis_deg, min(sw.switch_spread_deg, 90.0), fine_error_deg)
+        if resync_error_deg is not None:
+            rs = countkeeping.resync(sw.hysteresis_deg, min(sw.switch_spread_deg, 90.0), resync_error_deg)
             state["resync"] = rs
             passes.append(rs.ok)
     state["all_ok"] = all(passes)
-    return state
+    return MappingProxyType(state)
 
 
 def _largest_airgap_mm(design: ActuatorDesign, temps: np.ndarray, fine_error_deg: float) -> float | None:
@@ -1953,7 +1981,6 @@ def _accuracy_stage_cached(design: ActuatorDesign, curves: bool) -> _BudgetStage
     return _BudgetStage((tuple(values), tuple(checks), tuple(curve_list), tuple(warns), tuple(assumptions)))
 
 
-@lru_cache(maxsize=64)
 def latch_switch_spread_from_field(design: ActuatorDesign) -> tuple[float, float] | None:
     """Field-derived latch switch-point tolerance and hysteresis of a design (deg, deg), or None.
 
@@ -1964,14 +1991,23 @@ def latch_switch_spread_from_field(design: ActuatorDesign) -> tuple[float, float
     """
     if design.magnet is None or design.latches.operate_field_mT is None:
         return None
+    lat = design.latches
+    return _switch_spread(design.magnet, tuple(_service_temperatures_degC(design).tolist()), lat.operate_field_mT,
+                          lat.release_field_mT, lat.threshold_spread_mT, lat.threshold_drift_pct_per_K)
+
+
+@lru_cache(maxsize=64)
+def _switch_spread(mag, temps: tuple, operate_field_mT: float, release_field_mT: float, threshold_spread_mT: float,
+                   threshold_drift_pct_per_K: float) -> tuple[float, float]:
+    # Cached on exactly what it reads (the counting limits ask for it several times a sizing, and a
+    # tolerance run that draws the latches' stated tolerance or the backlash reuses it).
     from .magnet import latch_switch_spread_deg
 
-    temps = _service_temperatures_degC(design)
-    b_latch = _field_state(design, temps, design.magnet.airgap_mm, 0.0)["b_latch"]
-    lat = design.latches
-    return latch_switch_spread_deg(b_latch, temps, operate_field_mT=lat.operate_field_mT,
-                                   release_field_mT=lat.release_field_mT, threshold_spread_mT=lat.threshold_spread_mT,
-                                   threshold_drift_pct_per_K=lat.threshold_drift_pct_per_K)
+    temps = np.array(temps)
+    return latch_switch_spread_deg(_latch_peak_field(mag, temps, mag.airgap_mm), temps,
+                                   operate_field_mT=operate_field_mT, release_field_mT=release_field_mT,
+                                   threshold_spread_mT=threshold_spread_mT,
+                                   threshold_drift_pct_per_K=threshold_drift_pct_per_K)
 
 
 # ---------------------------------------------------------------------------
