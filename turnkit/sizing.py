@@ -1642,15 +1642,22 @@ def _magnet_numbers(mag):
 def _field_state(design: ActuatorDesign, temps: np.ndarray, airgap_mm: float, fine_error_deg: float):
     """Fields at the sensor and the latches over temperature, and whether each field check passes.
 
-    A read-only mapping, cached on exactly what it reads (see :func:`_fields`): a tolerance run that
-    draws backlash, latch tolerances or battery figures works the fields out once.
+    A read-only mapping. The fields are cached on exactly what they read (:func:`_fields`), so a
+    tolerance run that draws backlash, latch tolerances, the sensor or battery figures works them out
+    once; only the re-sync check, which also reads the sensor error, is worked out each time.
     """
+    from . import countkeeping
+
     lat = design.latches
     thresholds = (lat.operate_field_mT, lat.release_field_mT, lat.threshold_spread_mT, lat.threshold_drift_pct_per_K)
-    # The sensor error enters only the re-sync check, which needs count keeping.
-    resync_error = float(fine_error_deg) if design.count_memory is not None else None
-    return _fields(design.magnet, tuple(temps.tolist()), float(airgap_mm), design.sensor.minimum_field_mT,
-                   thresholds, resync_error)
+    state = _fields(design.magnet, tuple(temps.tolist()), float(airgap_mm), design.sensor.minimum_field_mT,
+                    thresholds)
+    sw = state["switching"]
+    if sw is None or design.count_memory is None:
+        return state
+    # The re-sync check (count keeping) also reads the sensor error, which a tolerance run may draw.
+    rs = countkeeping.resync(sw.hysteresis_deg, min(sw.switch_spread_deg, 90.0), fine_error_deg)
+    return MappingProxyType({**state, "resync": rs, "all_ok": state["all_ok"] and rs.ok})
 
 
 def _latch_peak_field(mag, temps: np.ndarray, airgap_mm: float) -> np.ndarray:
@@ -1664,12 +1671,11 @@ def _latch_peak_field(mag, temps: np.ndarray, airgap_mm: float) -> np.ndarray:
 
 
 @lru_cache(maxsize=256)
-def _fields(mag, temps: tuple, airgap_mm: float, minimum_field_mT: float, thresholds: tuple,
-            resync_error_deg: float | None) -> MappingProxyType:
-    """:func:`_field_state` from the [magnet] section, the temperatures (degC), the airgap (mm), the sensor's
-    minimum field (mT), the latches' (operate mT, release mT, threshold spread mT, threshold drift %/K) and
-    the sensor error for the re-sync check (deg; None without count keeping)."""
-    from . import countkeeping, magnet as mag_mod
+def _fields(mag, temps: tuple, airgap_mm: float, minimum_field_mT: float, thresholds: tuple) -> MappingProxyType:
+    """:func:`_field_state` without the re-sync check, from the [magnet] section, the temperatures (degC),
+    the airgap (mm), the sensor's minimum field (mT) and the latches' (operate mT, release mT, threshold
+    spread mT, threshold drift %/K)."""
+    from . import magnet as mag_mod
 
     temps = np.array(temps)
     br20, drift, _, _ = _magnet_numbers(mag)
@@ -1687,10 +1693,6 @@ def _fields(mag, temps: tuple, airgap_mm: float, minimum_field_mT: float, thresh
                                      threshold_spread_mT=spread, threshold_drift_pct_per_K=threshold_drift)
         state["switching"] = sw
         passes += [sw.operates, sw.releases]
-        if resync_error_deg is not None:
-            rs = countkeeping.resync(sw.hysteresis_deg, min(sw.switch_spread_deg, 90.0), resync_error_deg)
-            state["resync"] = rs
-            passes.append(rs.ok)
     state["all_ok"] = all(passes)
     return MappingProxyType(state)
 
