@@ -274,3 +274,32 @@ def test_the_quantile_of_rows_with_a_low_threshold_or_nan_falls_back_to_a_full_s
     part = np.partition(with_nan, (4985, 4986), axis=1)
     np.testing.assert_array_equal(acc._quantile_rows(with_nan, 0.9973),
                                   part[:, 4985] + (0.9973 * 4999 - 4985) * (part[:, 4986] - part[:, 4985]))
+
+
+def _crane_like_parts(later_scale=1.0):
+    temps = np.linspace(-20.0, 45.0, 10)
+    return temps, [acc.Contribution("sensor", "s", np.full(10, 0.01), "sine"),
+                   acc.Contribution("noise", "n", np.full(10, 0.002), "normal"),
+                   acc.Contribution("backlash", "b", np.full(10, 0.05), "two_point"),
+                   acc.Contribution("drift", "d", later_scale * (np.abs(temps - 20.0) * 1e-4 + 1e-4), "sine"),
+                   acc.Contribution("runout", "r", np.full(10, 0.004), "sine")]
+
+
+def test_the_tail_of_the_sums_alone_gives_the_same_quantiles_as_every_draw_summed():
+    # Shared terms first, a temperature-dependent one later (the usual budget): only the draws
+    # whose bound reaches the quantile are summed, and the quantiles are those of all draws.
+    temps, parts = _crane_like_parts()
+    draws = acc._draws(tuple(c.shape for c in parts), 20000, 1)
+    p = math.erf(3.0 / math.sqrt(2.0))
+    tail = acc._tail_quantiles(tuple(c.size for c in parts), draws, temps.size, p)
+    assert tail is not None
+    np.testing.assert_array_equal(tail, _budget_one_row_at_a_time(parts, temps))
+    np.testing.assert_array_equal(acc.budget(parts, temps).monte_carlo, tail)
+
+
+def test_a_later_term_larger_than_the_shared_ones_sums_every_draw():
+    temps, parts = _crane_like_parts(later_scale=2000.0)  # the drift dwarfs the shared terms at most temperatures
+    draws = acc._draws(tuple(c.shape for c in parts), 20000, 1)
+    p = math.erf(3.0 / math.sqrt(2.0))
+    assert acc._tail_quantiles(tuple(c.size for c in parts), draws, temps.size, p) is None
+    np.testing.assert_array_equal(acc.budget(parts, temps).monte_carlo, _budget_one_row_at_a_time(parts, temps))

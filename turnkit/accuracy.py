@@ -185,8 +185,11 @@ def budget(contributions, temperatures_degC, *, coverage_factor: float = 3.0, sa
         sq += ext * ext
     p = math.erf(k / math.sqrt(2.0))
     if parts:
-        sums, row_of = _summed_draws(tuple(c.size for c in parts), draws, n_t)
-        mc = _quantile_rows([np.abs(row, out=row) for row in sums], p)[row_of]
+        sizes = tuple(c.size for c in parts)
+        mc = _tail_quantiles(sizes, draws, n_t, p)
+        if mc is None:
+            sums, row_of = _summed_draws(sizes, draws, n_t)
+            mc = _quantile_rows([np.abs(row, out=row) for row in sums], p)[row_of]
     else:
         mc = np.zeros(n_t)
     return Budget(temperatures_degC=temps, contributions=tuple(parts), coverage_factor=k, worst_case=wc,
@@ -227,6 +230,62 @@ def _summed_draws(sizes: tuple[np.ndarray, ...], draws: tuple[np.ndarray, ...],
         rows = split
         group = [index[key] for key in keys]
     return rows, np.array(group, dtype=np.intp)
+
+
+def _tail_quantiles(sizes: tuple[np.ndarray, ...], draws: tuple[np.ndarray, ...], n_rows: int,
+                    p: float) -> np.ndarray | None:
+    """The quantile at ``p`` (near the top) of |Σ size·draw| for each temperature, from the draws that can
+    reach it.
+
+    Most budgets begin with contributions that are the same at every temperature; their running
+    sum ``P`` is one row. The later ones move |P| by at most ``B`` (their largest sizes times
+    |draw|), so every temperature's value lies below |P| + B, draw by draw. Only the eighth of the
+    draws with the largest bounds are summed: when a temperature's order statistics come out at
+    or above the smallest bound kept, no other draw can reach them, so they are exact. Kept draws
+    are summed with the same products added in the same order as the full sums, so the numbers
+    are the same, bit for bit. Returns None where this does not apply (no shared or no changing
+    contributions, a quantile far from the top, a non-finite value, a statistic below the bound):
+    then every draw is summed.
+    """
+    n = draws[0].size
+    pos = p * (n - 1)
+    lo = int(np.floor(pos))
+    hi = min(lo + 1, n - 1)
+    keep = n // 8
+    shared = 0
+    while shared < len(sizes) and len(set(sizes[shared].tolist())) == 1:
+        shared += 1
+    if shared in (0, len(sizes)) or 4 * (n - lo) > keep:
+        return None
+    product = np.empty(n)
+    prefix = np.zeros(n)
+    for size, draw in zip(sizes[:shared], draws[:shared]):
+        np.multiply(float(size[0]), draw, out=product)
+        prefix += product
+    bound = np.abs(prefix)
+    for size, draw in zip(sizes[shared:], draws[shared:]):
+        np.abs(draw, out=product)
+        product *= float(np.max(size))
+        bound += product
+    # A margin far above the rounding of a few additions (relative 1e-16 each) keeps the bound safe.
+    bound *= 1.0 + 1e-9
+    least = np.partition(bound, n - keep)[n - keep]
+    if not np.isfinite(least):
+        return None
+    kept = np.flatnonzero(bound >= least)
+    top = kept.size - (n - lo)  # the lower statistic's rank among the kept draws
+    # One row per distinct set of later sizes, all rows summed at once.
+    rows = list(zip(*(size.tolist() for size in sizes[shared:])))
+    index = {factors: i for i, factors in enumerate(dict.fromkeys(rows))}
+    factors = np.array(list(index))
+    sums = np.repeat(prefix[kept][None, :], len(index), axis=0)
+    for k, draw in enumerate(draws[shared:]):
+        sums += factors[:, k, None] * draw[kept][None, :]
+    part = np.partition(np.abs(sums, out=sums), (top, top + hi - lo), axis=1)
+    a, b = part[:, top], part[:, top + hi - lo]
+    if not np.all(a >= least):  # a draw left out could lie between: sum them all
+        return None
+    return (a + (pos - lo) * (b - a))[[index[r] for r in rows]]
 
 
 def _quantile_rows(values, p: float) -> np.ndarray:
