@@ -174,7 +174,7 @@ def budget(contributions, temperatures_degC, *, coverage_factor: float = 3.0, sa
         elif size.size != temps.size:
             raise DesignValueError(f"Contribution({c.key}).size", size.size,
                                    f"one value or {temps.size} (one per temperature)")
-        parts.append(replace(c, size=size))
+        parts.append(c if size is c.size else replace(c, size=size))
     n_t = temps.size
     wc = np.zeros(n_t)
     sq = np.zeros(n_t)

@@ -1729,11 +1729,19 @@ def _accuracy_stage(design: ActuatorDesign, curves: bool = True) -> _BudgetStage
 
     Cached on the sections it reads: a poll-period or battery change on the dashboard reuses it.
     """
+    counter, schedule, power_ = _unread_sections()
+    key = replace(design, name="-", description="", counter=counter, schedule=schedule, power=power_, battery=None,
+                  motion=())
+    return _accuracy_stage_cached(key, bool(curves))
+
+
+@lru_cache(maxsize=1)
+def _unread_sections():
+    """Default [counter], [schedule] and [power] sections, which stand in for the design's in the accuracy
+    stage's cache key (made once: each is validated when made)."""
     from .design import CounterDesign, PowerDesign, ScheduleDesign
 
-    key = replace(design, name="-", description="", counter=CounterDesign(), schedule=ScheduleDesign(),
-                  power=PowerDesign(), battery=None, motion=())
-    return _accuracy_stage_cached(key, bool(curves))
+    return CounterDesign(), ScheduleDesign(), PowerDesign()
 
 
 @lru_cache(maxsize=64)
