@@ -239,23 +239,22 @@ def _tail_quantiles(sizes: tuple[np.ndarray, ...], draws: tuple[np.ndarray, ...]
 
     Most budgets begin with contributions that are the same at every temperature; their running
     sum ``P`` is one row. The later ones move |P| by at most ``B`` (their largest sizes times
-    |draw|), so every temperature's value lies below |P| + B, draw by draw. Only the eighth of the
-    draws with the largest bounds are summed: when a temperature's order statistics come out at
+    |draw|), so every temperature's value lies below |P| + B, draw by draw. Only about the eighth of
+    the draws with the largest bounds are summed: when a temperature's order statistics come out at
     or above the smallest bound kept, no other draw can reach them, so they are exact. Kept draws
     are summed with the same products added in the same order as the full sums, so the numbers
     are the same, bit for bit. Returns None where this does not apply (no shared or no changing
-    contributions, a quantile far from the top, a non-finite value, a statistic below the bound):
+    contributions, a quantile far from the top, an overflow, a statistic below the bound):
     then every draw is summed.
     """
     n = draws[0].size
     pos = p * (n - 1)
     lo = int(np.floor(pos))
     hi = min(lo + 1, n - 1)
-    keep = n // 8
     shared = 0
     while shared < len(sizes) and len(set(sizes[shared].tolist())) == 1:
         shared += 1
-    if shared in (0, len(sizes)) or 4 * (n - lo) > keep:
+    if shared in (0, len(sizes)) or 32 * (n - lo) > n:
         return None
     product = np.empty(n)
     prefix = np.zeros(n)
@@ -267,13 +266,20 @@ def _tail_quantiles(sizes: tuple[np.ndarray, ...], draws: tuple[np.ndarray, ...]
         np.abs(draw, out=product)
         product *= float(np.max(size))
         bound += product
-    # A margin far above the rounding of a few additions (relative 1e-16 each) keeps the bound safe.
-    bound *= 1.0 + 1e-9
-    least = np.partition(bound, n - keep)[n - keep]
-    if not np.isfinite(least):
+    if not np.isfinite(bound.sum()):  # an overflow: sum every draw as it comes
         return None
+    # A margin far above the rounding of a few additions (relative 1e-16 each, or one step of the
+    # smallest numbers) keeps the bound above every sum.
+    bound *= 1.0 + 1e-9
+    bound += 1e-300
+    # About the eighth of the draws with the largest bounds (the threshold from every eighth bound).
+    every_eighth = bound[::8]
+    j = every_eighth.size - max(every_eighth.size // 8, 1)
+    least = np.partition(every_eighth, j)[j]
     kept = np.flatnonzero(bound >= least)
     top = kept.size - (n - lo)  # the lower statistic's rank among the kept draws
+    if top < 0:
+        return None
     # One row per distinct set of later sizes, all rows summed at once.
     rows = list(zip(*(size.tolist() for size in sizes[shared:])))
     index = {factors: i for i, factors in enumerate(dict.fromkeys(rows))}
