@@ -303,3 +303,22 @@ def test_a_later_term_larger_than_the_shared_ones_sums_every_draw():
     p = math.erf(3.0 / math.sqrt(2.0))
     assert acc._tail_quantiles(tuple(c.size for c in parts), draws, temps.size, p) is None
     np.testing.assert_array_equal(acc.budget(parts, temps).monte_carlo, _budget_one_row_at_a_time(parts, temps))
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.lists(st.sampled_from(acc.SHAPES), min_size=2, max_size=6), st.integers(1, 5),
+       st.lists(st.floats(0.5, 1.5), min_size=4, max_size=4), st.sampled_from([0.05, 0.3, 3.0]),
+       st.integers(0, 2**16))
+def test_budget_quantiles_equal_every_draw_summed_whatever_the_later_terms_do(shapes, first_varying, spread, scale,
+                                                                              seed):
+    # Shared terms, then terms that change with temperature, small or large against them: the
+    # draws left out of the sum never change the quantiles, bit for bit.
+    temps = np.array([-20.0, 0.0, 20.0, 45.0])
+    rng = np.random.default_rng(seed)
+    parts = []
+    for i, shape in enumerate(shapes):
+        size = float(rng.uniform(0.01, 0.05))
+        sizes = scale * size * np.array(spread) if i >= first_varying else np.full(4, size)
+        parts.append(acc.Contribution(f"t{i}", "t", sizes, shape))
+    np.testing.assert_array_equal(acc.budget(parts, temps, seed=seed).monte_carlo,
+                                  _budget_one_row_at_a_time(parts, temps, seed=seed))
