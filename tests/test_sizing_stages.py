@@ -178,3 +178,16 @@ def test_the_latch_switch_spread_is_worked_out_again_only_when_an_input_it_reads
                     replace(crane, requirements=replace(crane.requirements, service_temperature_high_degC=85.0))):
         assert sizing.latch_switch_spread_from_field(changed) != spread
     assert sizing._switch_spread.cache_info().misses == 4
+
+
+def test_the_budget_temperatures_follow_the_service_range_and_the_calibration_temperature():
+    crane = load_design(DEMO / "camera-crane-joint.toml")
+    grid = sizing._service_temperatures_degC(crane)
+    assert sizing._service_temperatures_degC(replace(crane, name="other")) is grid  # nothing it reads changed
+    req = crane.requirements
+    hotter = replace(crane, requirements=replace(req, service_temperature_high_degC=60.0))
+    assert sizing._service_temperatures_degC(hotter)[-1] == 60.0 and grid[-1] == 45.0
+    recal = replace(crane, accuracy=replace(crane.accuracy, calibration_temperature_degC=31.0))
+    assert 31.0 in sizing._service_temperatures_degC(recal) and 31.0 not in grid
+    with pytest.raises(ValueError):
+        grid[0] = 0.0  # shared by every sizing of these temperatures: read-only

@@ -1620,11 +1620,18 @@ def _floor_digits(value: float, digits: int = 3) -> str:
 def _service_temperatures_degC(design: ActuatorDesign) -> np.ndarray:
     """Budget temperatures: the service range in up to 9 steps plus the calibration temperature inside it."""
     low, high = design.requirements.temperature_range_degC()
+    return _temperature_grid(low, high, design.accuracy.calibration_temperature_degC)
+
+
+@lru_cache(maxsize=64)
+def _temperature_grid(low: float, high: float, cal: float) -> np.ndarray:
+    # Cached on the three temperatures it reads (degC); read-only, since every caller shares it.
     grid = np.linspace(low, high, 9) if high > low else np.array([low])
-    cal = design.accuracy.calibration_temperature_degC
     if low <= cal <= high:
         grid = np.append(grid, cal)
-    return np.array(sorted(set(grid.tolist())))  # np.unique would import a numpy submodule on a cold start
+    grid = np.array(sorted(set(grid.tolist())))  # np.unique would import a numpy submodule on a cold start
+    grid.flags.writeable = False
+    return grid
 
 
 def _magnet_numbers(mag):
