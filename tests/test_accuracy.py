@@ -245,7 +245,8 @@ def test_monte_carlo_sums_shared_between_temperatures_equal_the_plain_sums_bit_f
 
 def test_the_quantile_of_a_changed_term_changes_and_of_an_equal_term_does_not():
     temps = np.array([-10.0, 20.0, 50.0])
-    base = [acc.Contribution("a", "a", np.full(3, 0.2), "sine"), acc.Contribution("b", "b", np.full(3, 0.1), "two_point"),
+    base = [acc.Contribution("a", "a", np.full(3, 0.2), "sine"),
+            acc.Contribution("b", "b", np.full(3, 0.1), "two_point"),
             acc.Contribution("c", "c", np.array([0.05, 0.0, 0.05]), "uniform")]
     same = acc.budget([replace(c) for c in base], temps).monte_carlo
     np.testing.assert_array_equal(same, acc.budget(base, temps).monte_carlo)

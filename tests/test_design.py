@@ -361,7 +361,8 @@ def test_the_fields_each_section_checks_are_listed_once_and_again_when_its_table
     assert d._stored_fields(d.SensorDesign) is plan
     assert [spec for spec, _, _ in plan] == list(d.SensorDesign.FIELDS)
     amplitude = d.SensorDesign.field_spec("amplitude")
-    assert ("mV", "amplitude_mV", "SensorDesign.amplitude_mV") in dict((spec.key, stored) for spec, _, stored in plan)["amplitude"]
+    by_key = {spec.key: stored for spec, _, stored in plan}
+    assert ("mV", "amplitude_mV", "SensorDesign.amplitude_mV") in by_key["amplitude"]
     # A changed table is followed: the listed fields are those of the table in place.
     monkeypatch.setattr(d.SensorDesign, "FIELDS", (amplitude,))
     assert [spec for spec, _, _ in d._stored_fields(d.SensorDesign)] == [amplitude]

@@ -173,7 +173,8 @@ def test_the_latch_switch_spread_is_worked_out_again_only_when_an_input_it_reads
                      battery=replace(crane.battery, capacity_mAh=123.0))
     assert sizing.latch_switch_spread_from_field(unread) == spread
     assert sizing._switch_spread.cache_info().misses == 1
-    for changed in (replace(crane, latches=replace(crane.latches, operate_field_mT=crane.latches.operate_field_mT * 1.2)),
+    later = replace(crane.latches, operate_field_mT=crane.latches.operate_field_mT * 1.2)
+    for changed in (replace(crane, latches=later),
                     replace(crane, magnet=replace(crane.magnet, airgap_mm=crane.magnet.airgap_mm + 0.4)),
                     replace(crane, requirements=replace(crane.requirements, service_temperature_high_degC=85.0))):
         assert sizing.latch_switch_spread_from_field(changed) != spread
