@@ -76,7 +76,7 @@ class Contribution:
         if self.shape not in SHAPES:
             raise DesignValueError(f"Contribution({self.key}).shape", self.shape, f"one of {SHAPES}")
         size = np.atleast_1d(np.asarray(self.size, dtype=float)).copy()
-        if not np.all(np.isfinite(size)) or np.any(size < 0):
+        if not np.isfinite(size).all() or (size < 0).any():
             raise DesignValueError(f"Contribution({self.key}).size", self.size, "finite and >= 0")
         size.flags.writeable = False
         object.__setattr__(self, "size", size)

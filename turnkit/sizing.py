@@ -1836,7 +1836,7 @@ def _accuracy_stage_cached(design: ActuatorDesign, curves: bool) -> _BudgetStage
 
     def part(key, label, motor_deg=None, out=None, shape="sine", note=""):
         size = np.asarray(out if out is not None else np.asarray(motor_deg, dtype=float) * per_motor_deg, dtype=float)
-        if np.any(size > 0):
+        if (size > 0).any():
             parts.append(acc_mod.Contribution(key, label, size, shape, note))
 
     part("sensor_residual", "sensor error" + (" after calibration" if design.sensor.calibrated else
