@@ -213,3 +213,113 @@ def test_the_exported_summaries_show_the_three_sums_side_by_side():
     assert md.count(" degC |") >= 9
     html = to_html(result)
     assert "<h2>Accuracy budget over temperature</h2>" in html and "<th>Monte Carlo</th>" in html
+
+
+def _budget_one_row_at_a_time(parts, temps, k=3.0, samples=20000, seed=1):
+    """The Monte Carlo sums the plain way: every temperature summed and partially sorted on its own."""
+    draws = acc._draws(tuple(c.shape for c in parts), samples, seed)
+    total = np.zeros((len(temps), samples))
+    for c, draw in zip(parts, draws):
+        total += np.broadcast_to(c.size, (len(temps),))[:, None] * draw[None, :]
+    values = np.abs(total)
+    p = math.erf(k / math.sqrt(2.0))
+    pos = p * (samples - 1)
+    lo = int(np.floor(pos))
+    part = np.partition(values, (lo, lo + 1), axis=1)
+    return part[:, lo] + (pos - lo) * (part[:, lo + 1] - part[:, lo])
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.lists(st.tuples(st.sampled_from(acc.SHAPES), st.floats(0.0, 5.0), st.booleans()), min_size=1, max_size=6),
+       st.integers(1, 8), st.sampled_from([100, 1000, 20000]), st.sampled_from([1.0, 2.0, 3.0]))
+def test_monte_carlo_sums_shared_between_temperatures_equal_the_plain_sums_bit_for_bit(terms, n_t, samples, k):
+    # Terms that do not change with temperature share one running sum until a term that does splits
+    # it; the result must be the plain per-temperature sum exactly, not just closely.
+    temps = np.linspace(-20.0, 60.0, n_t)
+    parts = [acc.Contribution(f"t{i}", "t", size * (1.0 + 0.1 * np.round(np.abs(temps - 20.0) / 20.0)) if varies
+                              else np.full(n_t, size), shape)
+             for i, (shape, size, varies) in enumerate(terms)]
+    b = acc.budget(parts, temps, coverage_factor=k, samples=samples)
+    np.testing.assert_array_equal(b.monte_carlo, _budget_one_row_at_a_time(parts, temps, k, samples))
+
+
+def test_the_quantile_of_a_changed_term_changes_and_of_an_equal_term_does_not():
+    temps = np.array([-10.0, 20.0, 50.0])
+    base = [acc.Contribution("a", "a", np.full(3, 0.2), "sine"),
+            acc.Contribution("b", "b", np.full(3, 0.1), "two_point"),
+            acc.Contribution("c", "c", np.array([0.05, 0.0, 0.05]), "uniform")]
+    same = acc.budget([replace(c) for c in base], temps).monte_carlo
+    np.testing.assert_array_equal(same, acc.budget(base, temps).monte_carlo)
+    changed = acc.budget([base[0], replace(base[1], size=np.full(3, 0.11)), base[2]], temps).monte_carlo
+    assert np.all(changed != same)
+    np.testing.assert_array_equal(changed, _budget_one_row_at_a_time(
+        [base[0], replace(base[1], size=np.full(3, 0.11)), base[2]], temps))
+    # Rows with the same sizes (the two ends here) share one sum and one quantile.
+    assert same[0] == same[2] != same[1]
+
+
+def test_the_quantile_of_rows_with_a_low_threshold_or_nan_falls_back_to_a_full_sort():
+    rng = np.random.default_rng(3)
+    values = np.abs(rng.standard_normal((4, 5000)))
+    values[1, :] = 1.0  # every value equal: the threshold holds all of them
+    values[2, ::2] = 0.0
+    for p in (0.5, 0.9973, 0.99999):
+        pos = p * 4999
+        lo = int(np.floor(pos))
+        hi = min(lo + 1, 4999)
+        part = np.partition(values, (lo, hi), axis=1)
+        expected = part[:, lo] + (pos - lo) * (part[:, hi] - part[:, lo])
+        np.testing.assert_array_equal(acc._quantile_rows(values, p), expected)
+    with_nan = values.copy()
+    with_nan[3, 7] = np.nan
+    part = np.partition(with_nan, (4985, 4986), axis=1)
+    np.testing.assert_array_equal(acc._quantile_rows(with_nan, 0.9973),
+                                  part[:, 4985] + (0.9973 * 4999 - 4985) * (part[:, 4986] - part[:, 4985]))
+
+
+def _crane_like_parts(later_scale=1.0):
+    temps = np.linspace(-20.0, 45.0, 10)
+    return temps, [acc.Contribution("sensor", "s", np.full(10, 0.01), "sine"),
+                   acc.Contribution("noise", "n", np.full(10, 0.002), "normal"),
+                   acc.Contribution("backlash", "b", np.full(10, 0.05), "two_point"),
+                   acc.Contribution("drift", "d", later_scale * (np.abs(temps - 20.0) * 1e-4 + 1e-4), "sine"),
+                   acc.Contribution("runout", "r", np.full(10, 0.004), "sine")]
+
+
+def test_the_tail_of_the_sums_alone_gives_the_same_quantiles_as_every_draw_summed():
+    # Shared terms first, a temperature-dependent one later (the usual budget): only the draws
+    # whose bound reaches the quantile are summed, and the quantiles are those of all draws.
+    temps, parts = _crane_like_parts()
+    draws = acc._draws(tuple(c.shape for c in parts), 20000, 1)
+    p = math.erf(3.0 / math.sqrt(2.0))
+    tail = acc._tail_quantiles(tuple(c.size for c in parts), draws, temps.size, p)
+    assert tail is not None
+    np.testing.assert_array_equal(tail, _budget_one_row_at_a_time(parts, temps))
+    np.testing.assert_array_equal(acc.budget(parts, temps).monte_carlo, tail)
+
+
+def test_a_later_term_larger_than_the_shared_ones_sums_every_draw():
+    temps, parts = _crane_like_parts(later_scale=2000.0)  # the drift dwarfs the shared terms at most temperatures
+    draws = acc._draws(tuple(c.shape for c in parts), 20000, 1)
+    p = math.erf(3.0 / math.sqrt(2.0))
+    assert acc._tail_quantiles(tuple(c.size for c in parts), draws, temps.size, p) is None
+    np.testing.assert_array_equal(acc.budget(parts, temps).monte_carlo, _budget_one_row_at_a_time(parts, temps))
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.lists(st.sampled_from(acc.SHAPES), min_size=2, max_size=6), st.integers(1, 5),
+       st.lists(st.floats(0.5, 1.5), min_size=4, max_size=4), st.sampled_from([0.05, 0.3, 3.0]),
+       st.integers(0, 2**16))
+def test_budget_quantiles_equal_every_draw_summed_whatever_the_later_terms_do(shapes, first_varying, spread, scale,
+                                                                              seed):
+    # Shared terms, then terms that change with temperature, small or large against them: the
+    # draws left out of the sum never change the quantiles, bit for bit.
+    temps = np.array([-20.0, 0.0, 20.0, 45.0])
+    rng = np.random.default_rng(seed)
+    parts = []
+    for i, shape in enumerate(shapes):
+        size = float(rng.uniform(0.01, 0.05))
+        sizes = scale * size * np.array(spread) if i >= first_varying else np.full(4, size)
+        parts.append(acc.Contribution(f"t{i}", "t", sizes, shape))
+    np.testing.assert_array_equal(acc.budget(parts, temps, seed=seed).monte_carlo,
+                                  _budget_one_row_at_a_time(parts, temps, seed=seed))

@@ -333,7 +333,7 @@ def test_lab_adds_allow_root_only_when_running_as_root(monkeypatch):
 
 def test_lab_returns_jupyterlabs_exit_status(monkeypatch, tmp_path):
     monkeypatch.chdir(tmp_path)
-    monkeypatch.setattr(cli.subprocess, "Popen", lambda command: _Exited(3))
+    monkeypatch.setattr(subprocess, "Popen", lambda command: _Exited(3))
     assert main(["lab"]) == 3
 
 
@@ -463,3 +463,14 @@ def test_design_template_lists_every_cell_of_the_battery_table():
 
     text = (cli.TEMPLATES / "design.toml").read_text()
     assert all(key in text for key in available_cells())
+
+
+def test_size_leaves_the_garbage_collector_running_with_the_imported_model_frozen_out_of_it():
+    # In a fresh process the model is imported with the collector paused, then frozen out of later
+    # collections; the collector runs again for sizing itself and whatever the caller does next.
+    code = ("import gc, io, contextlib\nfrom turnkit.cli import main\n"
+            "with contextlib.redirect_stdout(io.StringIO()):\n"
+            f"    status = main(['size', {str(ROOT / 'demo' / 'camera-crane-joint.toml')!r}])\n"
+            "print(status, gc.isenabled(), gc.get_freeze_count() > 0)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.split()
+    assert out[1:] == ["True", "True"] and out[0] in ("0", "1")

@@ -354,3 +354,18 @@ def test_changing_the_sweep_gives_a_different_sensor_that_hashes_apart():
     b = dataclasses.replace(a, sweep="b.csv")
     assert a != b and hash(a) != hash(b)
     assert dataclasses.replace(b, sweep="a.csv") == a
+
+
+def test_the_fields_each_section_checks_are_listed_once_and_again_when_its_table_changes(monkeypatch):
+    plan = d._stored_fields(d.SensorDesign)
+    assert d._stored_fields(d.SensorDesign) is plan
+    assert [spec for spec, _, _ in plan] == list(d.SensorDesign.FIELDS)
+    amplitude = d.SensorDesign.field_spec("amplitude")
+    by_key = {spec.key: stored for spec, _, stored in plan}
+    assert ("mV", "amplitude_mV", "SensorDesign.amplitude_mV") in by_key["amplitude"]
+    # A changed table is followed: the listed fields are those of the table in place.
+    monkeypatch.setattr(d.SensorDesign, "FIELDS", (amplitude,))
+    assert [spec for spec, _, _ in d._stored_fields(d.SensorDesign)] == [amplitude]
+    monkeypatch.undo()
+    with pytest.raises(DesignValueError, match="SensorDesign.amplitude_mV"):
+        d.SensorDesign(amplitude_mV=-1.0)

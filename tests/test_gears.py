@@ -445,3 +445,18 @@ def test_given_forward_efficiency_replaces_the_computed_one_but_not_the_locking_
     assert screw.backdrive_efficiency <= 0  # still from lead angle against friction
     with pytest.raises(DesignValueError, match="forward_efficiency"):
         LeadScrew(pitch_mm=2, forward_efficiency=1.5)
+
+
+def test_travel_and_backlash_worked_out_once_follow_the_stages():
+    from dataclasses import replace
+
+    train = GearTrain((ExternalPair(18, 54, backlash_deg=0.5), LeadScrew(pitch_mm=2, backlash_mm=0.05)))
+    travel, backlash = train.travel_per_motor_turn, train.backlash_at_output()
+    assert train.travel_per_motor_turn == travel == Fraction(2, 3)
+    assert train.backlash_at_output() == backlash == pytest.approx(0.5 / 360.0 * 2.0 + 0.05)
+    # A train with other stages (a copy made with replace, or built anew) works them out for itself.
+    wider = replace(train, stages=(ExternalPair(18, 54, backlash_deg=1.0), train.stages[1]))
+    assert wider.backlash_at_output() == pytest.approx(1.0 / 360.0 * 2.0 + 0.05) != backlash
+    finer = GearTrain((ExternalPair(18, 72, backlash_deg=0.5), train.stages[1]))
+    assert finer.travel_per_motor_turn == Fraction(1, 2) != travel
+    assert GearTrain(train.stages).backlash_at_output() == backlash

@@ -666,3 +666,22 @@ def test_moves_that_do_not_fit_in_a_day_are_refused_with_the_move_time():
     with pytest.raises(DesignValueError, match="exactly one"):
         move_energy(moves_per_day=1, motor_turns_per_move=60.0, output_work_per_move_J=0.0,
                     gear_efficiency=1.0, motor_speed_rpm=60.0, supply_voltage_V=3.0)
+
+
+def test_state_fractions_of_plain_numbers_are_reused_and_follow_every_input():
+    from turnkit.power import _scalar_state_fractions, state_fractions
+
+    kw = dict(poll_period_s=0.02, wake_time_s=50e-6, settle_time_s=20e-6, poll_time_s=30e-6,
+              fast_period_s=0.005, hold_s=2.0, motion_fraction=0.01, motion_events_per_day=20.0,
+              tracking_fraction=0.001)
+    _scalar_state_fractions.cache_clear()
+    first, wakes = state_fractions(**kw)
+    first[:] = -1.0  # the caller's copy: the reused numbers are not touched
+    again, wakes_again = state_fractions(**kw)
+    assert _scalar_state_fractions.cache_info().hits == 1
+    vectorised, vectorised_wakes = state_fractions(**{k: np.array([v]) for k, v in kw.items()})
+    np.testing.assert_array_equal(again, vectorised[:, 0])
+    np.testing.assert_array_equal(wakes_again, vectorised_wakes[0])
+    for key in kw:
+        changed, changed_wakes = state_fractions(**{**kw, key: kw[key] * 1.5})
+        assert not (np.array_equal(changed, again) and np.array_equal(changed_wakes, wakes_again)), key

@@ -8,6 +8,7 @@ import sys
 from dataclasses import replace
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from turnkit import sizing
@@ -118,3 +119,76 @@ def test_reading_and_sizing_the_demos_loads_neither_sympy_nor_pint():
             "print('sympy' in sys.modules, 'pint' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False False"
+
+
+def test_a_trace_is_read_once_for_the_work_estimate_and_the_simulation():
+    crane = load_design(DEMO / "camera-crane-joint.toml")
+    sizing._trace_motion_cached.cache_clear()
+    sizing._scenario_motion.cache_clear()
+    sizing._simulate_scenario.cache_clear()
+    first = size(crane, base_dir=DEMO, curves=False)
+    assert sizing._trace_motion_cached.cache_info().misses == 1
+    # The same trace seen through another gear train is read again: its motor angles differ.
+    belt = crane.gear_train[0]
+    longer = replace(crane, gear_train=(replace(belt, teeth_driven=belt.teeth_driven + 3),) + crane.gear_train[1:])
+    second = size(longer, base_dir=DEMO, curves=False)
+    assert sizing._trace_motion_cached.cache_info().misses == 2
+    swing = [s for s in first.scenarios if s.kind == "trace"]
+    assert swing and swing != [s for s in second.scenarios if s.kind == "trace"]
+
+
+def test_the_magnet_fields_are_worked_out_again_only_when_an_input_they_read_changes():
+    crane = load_design(DEMO / "camera-crane-joint.toml")
+    temps = sizing._service_temperatures_degC(crane)
+    state = sizing._field_state(crane, temps, crane.magnet.airgap_mm, 0.2)
+    # Backlash, the stated latch tolerance and the battery are not read: the same state comes back.
+    unread = replace(crane, latches=replace(crane.latches, switch_point_tolerance_deg=7.0),
+                     gear_train=(replace(crane.gear_train[0], backlash_deg=0.9),) + crane.gear_train[1:])
+    again = sizing._field_state(unread, temps, crane.magnet.airgap_mm, 0.2)
+    assert again["b_sensor"] is state["b_sensor"] and again["switching"] is state["switching"]
+    assert again == state
+    # Each input it reads gives fields worked out anew, and different where the input matters.
+    farther = sizing._field_state(crane, temps, crane.magnet.airgap_mm + 0.5, 0.2)
+    assert np.all(farther["b_sensor"] < state["b_sensor"]) and np.all(farther["b_latch"] < state["b_latch"])
+    weaker = replace(crane, magnet=replace(crane.magnet, remanence_mT=0.8 * sizing._magnet_numbers(crane.magnet)[0]))
+    assert np.all(sizing._field_state(weaker, temps, crane.magnet.airgap_mm, 0.2)["b_sensor"] < state["b_sensor"])
+    stricter = replace(crane, sensor=replace(crane.sensor, minimum_field_mT=float(np.min(state["b_sensor"])) + 1.0))
+    assert state["sensor_ok"] and not sizing._field_state(stricter, temps, crane.magnet.airgap_mm, 0.2)["sensor_ok"]
+    later = replace(crane, latches=replace(crane.latches, operate_field_mT=crane.latches.operate_field_mT * 1.5))
+    assert sizing._field_state(later, temps, crane.magnet.airgap_mm, 0.2)["switching"].hysteresis_deg != \
+        state["switching"].hysteresis_deg
+    # The sensor error enters the re-sync guard only (count keeping is described here): the fields are shared.
+    other_error = sizing._field_state(crane, temps, crane.magnet.airgap_mm, 0.5)
+    assert other_error["resync"].guard_deg == pytest.approx(state["resync"].guard_deg + 0.3)
+    assert other_error["b_latch"] is state["b_latch"]
+    with pytest.raises(ValueError):
+        state["b_sensor"][0] = 0.0  # shared between sizings: read-only
+
+
+def test_the_latch_switch_spread_is_worked_out_again_only_when_an_input_it_reads_changes():
+    crane = load_design(DEMO / "camera-crane-joint.toml")
+    sizing._switch_spread.cache_clear()
+    spread = sizing.latch_switch_spread_from_field(crane)
+    unread = replace(crane, latches=replace(crane.latches, switch_point_tolerance_deg=7.0),
+                     battery=replace(crane.battery, capacity_mAh=123.0))
+    assert sizing.latch_switch_spread_from_field(unread) == spread
+    assert sizing._switch_spread.cache_info().misses == 1
+    later = replace(crane.latches, operate_field_mT=crane.latches.operate_field_mT * 1.2)
+    for changed in (replace(crane, latches=later),
+                    replace(crane, magnet=replace(crane.magnet, airgap_mm=crane.magnet.airgap_mm + 0.4)),
+                    replace(crane, requirements=replace(crane.requirements, service_temperature_high_degC=85.0))):
+        assert sizing.latch_switch_spread_from_field(changed) != spread
+    assert sizing._switch_spread.cache_info().misses == 4
+
+
+def test_the_budget_temperatures_follow_the_service_range_and_the_calibration_temperature():
+    crane = load_design(DEMO / "camera-crane-joint.toml")
+    grid = sizing._service_temperatures_degC(crane)
+    assert sizing._service_temperatures_degC(replace(crane, name="other")) is grid  # nothing it reads changed
+    req = crane.requirements
+    hotter = replace(crane, requirements=replace(req, service_temperature_high_degC=60.0))
+    assert sizing._service_temperatures_degC(hotter)[-1] == 60.0 and grid[-1] == 45.0
+    recal = replace(crane, accuracy=replace(crane.accuracy, calibration_temperature_degC=31.0))
+    assert 31.0 in sizing._service_temperatures_degC(recal) and 31.0 not in grid
+    with pytest.raises(ValueError):
+        grid[0] = 0.0  # shared by every sizing of these temperatures: read-only

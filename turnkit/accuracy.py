@@ -76,7 +76,7 @@ class Contribution:
         if self.shape not in SHAPES:
             raise DesignValueError(f"Contribution({self.key}).shape", self.shape, f"one of {SHAPES}")
         size = np.atleast_1d(np.asarray(self.size, dtype=float)).copy()
-        if not np.all(np.isfinite(size)) or np.any(size < 0):
+        if not np.isfinite(size).all() or (size < 0).any():
             raise DesignValueError(f"Contribution({self.key}).size", self.size, "finite and >= 0")
         size.flags.writeable = False
         object.__setattr__(self, "size", size)
@@ -174,31 +174,156 @@ def budget(contributions, temperatures_degC, *, coverage_factor: float = 3.0, sa
         elif size.size != temps.size:
             raise DesignValueError(f"Contribution({c.key}).size", size.size,
                                    f"one value or {temps.size} (one per temperature)")
-        parts.append(replace(c, size=size))
+        parts.append(c if size is c.size else replace(c, size=size))
     n_t = temps.size
     wc = np.zeros(n_t)
     sq = np.zeros(n_t)
     draws = _draws(tuple(c.shape for c in parts), int(samples), int(seed))
-    total = np.zeros((n_t, int(samples)))
-    for c, draw in zip(parts, draws):
+    for c in parts:
         ext = c.extreme(k)
         wc += ext
         sq += ext * ext
-        total += c.size[:, None] * draw[None, :]
     p = math.erf(k / math.sqrt(2.0))
-    mc = _quantile_rows(np.abs(total, out=total), p) if parts else np.zeros(n_t)
+    if parts:
+        sizes = tuple(c.size for c in parts)
+        mc = _tail_quantiles(sizes, draws, n_t, p)
+        if mc is None:
+            sums, row_of = _summed_draws(sizes, draws, n_t)
+            mc = _quantile_rows([np.abs(row, out=row) for row in sums], p)[row_of]
+    else:
+        mc = np.zeros(n_t)
     return Budget(temperatures_degC=temps, contributions=tuple(parts), coverage_factor=k, worst_case=wc,
                   rss=np.sqrt(sq), monte_carlo=np.asarray(mc, dtype=float), samples=int(samples))
 
 
-def _quantile_rows(values: np.ndarray, p: float) -> np.ndarray:
-    """Each row's quantile at ``p`` (linear interpolation, as numpy.quantile), by partial sorting."""
-    n = values.shape[1]
+def _summed_draws(sizes: tuple[np.ndarray, ...], draws: tuple[np.ndarray, ...],
+                  n_rows: int) -> tuple[list[np.ndarray], np.ndarray]:
+    """Σ size·draw over the contributions, in order, for each of ``n_rows`` temperatures.
+
+    Temperatures whose sizes agree on every contribution so far share one running sum (most
+    contributions do not change with temperature), and a shared sum splits where a later
+    contribution differs. Each number is still the same products added in the same order, so
+    the sums are those of summing every temperature on its own, bit for bit. The sums are kept
+    one per row, which stays in the processor's cache while the contributions are added.
+
+    Returns
+    -------
+    (sums, row_of)
+        The distinct sums (each ``samples`` long) and, for each temperature, the index of its sum.
+    """
+    group = [0] * n_rows
+    rows = [np.zeros(draws[0].size)]
+    product = np.empty(draws[0].size)
+    for size, draw in zip(sizes, draws):
+        keys = list(zip(group, size.tolist()))
+        # New groups in the order their first row comes; a sum split in two is copied before either
+        # part adds its term.
+        index = {key: i for i, key in enumerate(dict.fromkeys(keys))}
+        used: set[int] = set()
+        split = []
+        for parent, _ in index:
+            split.append(rows[parent].copy() if parent in used else rows[parent])
+            used.add(parent)
+        for row, (_, factor) in zip(split, index):
+            np.multiply(factor, draw, out=product)
+            row += product
+        rows = split
+        group = [index[key] for key in keys]
+    return rows, np.array(group, dtype=np.intp)
+
+
+def _tail_quantiles(sizes: tuple[np.ndarray, ...], draws: tuple[np.ndarray, ...], n_rows: int,
+                    p: float) -> np.ndarray | None:
+    """The quantile at ``p`` (near the top) of |Σ size·draw| for each temperature, from the draws that can
+    reach it.
+
+    Most budgets begin with contributions that are the same at every temperature; their running
+    sum ``P`` is one row. The later ones move |P| by at most ``B`` (their largest sizes times
+    |draw|), so every temperature's value lies below |P| + B, draw by draw. Only about the eighth of
+    the draws with the largest bounds are summed: when a temperature's order statistics come out at
+    or above the smallest bound kept, no other draw can reach them, so they are exact. Kept draws
+    are summed with the same products added in the same order as the full sums, so the numbers
+    are the same, bit for bit. Returns None where this does not apply (no shared or no changing
+    contributions, a quantile far from the top, an overflow, a statistic below the bound):
+    then every draw is summed.
+    """
+    n = draws[0].size
     pos = p * (n - 1)
     lo = int(np.floor(pos))
     hi = min(lo + 1, n - 1)
-    part = np.partition(values, (lo, hi), axis=1)
-    return part[:, lo] + (pos - lo) * (part[:, hi] - part[:, lo])
+    shared = 0
+    while shared < len(sizes) and len(set(sizes[shared].tolist())) == 1:
+        shared += 1
+    if shared in (0, len(sizes)) or 32 * (n - lo) > n:
+        return None
+    product = np.empty(n)
+    prefix = np.zeros(n)
+    for size, draw in zip(sizes[:shared], draws[:shared]):
+        np.multiply(float(size[0]), draw, out=product)
+        prefix += product
+    bound = np.abs(prefix)
+    for size, draw in zip(sizes[shared:], draws[shared:]):
+        np.abs(draw, out=product)
+        product *= float(np.max(size))
+        bound += product
+    if not np.isfinite(bound.sum()):  # an overflow: sum every draw as it comes
+        return None
+    # A margin far above the rounding of a few additions (relative 1e-16 each, or one step of the
+    # smallest numbers) keeps the bound above every sum.
+    bound *= 1.0 + 1e-9
+    bound += 1e-300
+    # About the eighth of the draws with the largest bounds (the threshold from every eighth bound).
+    every_eighth = bound[::8]
+    j = every_eighth.size - max(every_eighth.size // 8, 1)
+    least = np.partition(every_eighth, j)[j]
+    kept = np.flatnonzero(bound >= least)
+    top = kept.size - (n - lo)  # the lower statistic's rank among the kept draws
+    if top < 0:
+        return None
+    # One row per distinct set of later sizes, all rows summed at once.
+    rows = list(zip(*(size.tolist() for size in sizes[shared:])))
+    index = {factors: i for i, factors in enumerate(dict.fromkeys(rows))}
+    factors = np.array(list(index))
+    sums = np.repeat(prefix[kept][None, :], len(index), axis=0)
+    for k, draw in enumerate(draws[shared:]):
+        sums += factors[:, k, None] * draw[kept][None, :]
+    part = np.partition(np.abs(sums, out=sums), (top, top + hi - lo), axis=1)
+    a, b = part[:, top], part[:, top + hi - lo]
+    if not np.all(a >= least):  # a draw left out could lie between: sum them all
+        return None
+    return (a + (pos - lo) * (b - a))[[index[r] for r in rows]]
+
+
+def _quantile_rows(values, p: float) -> np.ndarray:
+    """Each row's quantile at ``p`` (linear interpolation, as numpy.quantile), by partial sorting.
+
+    The two order statistics around ``p`` are exact. For a quantile near the top (the usual
+    99.73 %) only the values above a threshold are sorted: the threshold comes from every
+    eighth value, and counting the values below it proves the two statistics lie above it;
+    when that count fails (or a row holds NaN) the whole row is partially sorted instead.
+    """
+    out = np.empty(len(values))
+    for r, row in enumerate(values):
+        n = row.size
+        pos = p * (n - 1)
+        lo = int(np.floor(pos))
+        hi = min(lo + 1, n - 1)
+        above = n - lo  # values at or above the lower statistic
+        step = 8
+        below = n
+        if above * step * 4 <= n and not np.isnan(row.sum()):
+            sub = row[::step]
+            j = max(sub.size - 4 * (above // step + 1) - 8, 0)
+            top = row[row >= np.partition(sub, j)[j]]
+            below = n - top.size
+        if below <= lo:  # the lo-th and hi-th smallest of the row are the same ranks of ``top``
+            part = np.partition(top, (lo - below, hi - below))
+            a, b = part[lo - below], part[hi - below]
+        else:
+            part = np.partition(row, (lo, hi))
+            a, b = part[lo], part[hi]
+        out[r] = a + (pos - lo) * (b - a)
+    return out
 
 
 @lru_cache(maxsize=32)

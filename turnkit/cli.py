@@ -21,19 +21,19 @@ usage or an internal error (the error goes to stderr).
 from __future__ import annotations
 
 import argparse
+import contextlib
+import gc
 import importlib.util
 import json
 import os
 import re
-import shlex
-import shutil
-import signal
-import subprocess
 import sys
-import urllib.parse
 import warnings
 from pathlib import Path
 from typing import Sequence
+
+# shlex, shutil, signal, subprocess and urllib.parse are imported by the subcommands that use
+# them: ``turnkit size`` is run often and should not pay for starting JupyterLab.
 
 from . import __version__
 from .errors import DesignFileError, DesignValueError, TurnkitError, TurnkitWarning
@@ -256,6 +256,8 @@ def _new(name: str, folder: Path) -> int:
         for path in written:  # all or nothing
             path.unlink(missing_ok=True)
         raise
+    import shlex
+
     print(f"wrote {design_path}\nwrote {notebook_path}\n"
           f"next: edit {design_path}, then `turnkit size {shlex.quote(str(design_path))}` "
           f"or `turnkit lab {shlex.quote(str(notebook_path))}`")
@@ -309,10 +311,32 @@ def _create(path: Path, text: str) -> None:
 
 # --- size -------------------------------------------------------------------------
 
+@contextlib.contextmanager
+def _imports_kept_out_of_collection():
+    """Import the sizing model with the cyclic garbage collector paused, then keep what the imports made
+    out of later collections (:func:`gc.freeze`).
+
+    Imports make long-lived objects only (numpy's and turnkit's modules, classes and tables).
+    Collecting while they pile up, and walking them again at each later collection, costs a cold
+    ``turnkit size`` about a twentieth of its time for nothing; sizing's own objects are collected
+    as usual. Nothing is done once the model is imported (e.g. a second call in one process).
+    """
+    if "turnkit.sizing" in sys.modules or not gc.isenabled():
+        yield
+        return
+    gc.disable()
+    try:
+        yield
+    finally:
+        gc.freeze()
+        gc.enable()
+
+
 def _size(file: Path, output: Path | None, overwrite: bool, allow_outside_paths: bool = False) -> int:
-    from .designfile import load_design
-    from .export import SUFFIXES, to_text, write_summary
-    from .sizing import size
+    with _imports_kept_out_of_collection():
+        from .designfile import load_design
+        from .export import SUFFIXES, to_text, write_summary
+        from .sizing import size
 
     if output is not None and output.suffix.lower() not in SUFFIXES:
         return _err("size", f"cannot tell the format of {output}: its extension must be one of "
@@ -412,6 +436,8 @@ def lab_command(notebook: Path | None, extra: Sequence[str] = (), root_dir: Path
     ``root_dir`` becomes the server's root folder (what Lab's file browser
     shows) unless ``extra`` already chooses one.
     """
+    import urllib.parse
+
     command = [sys.executable, "-m", "jupyterlab"]
     if notebook is not None:
         command.append(str(notebook))
@@ -451,6 +477,8 @@ def copy_demo(target: Path) -> list[Path]:
     Files already in ``target`` are kept as they are (they may hold the
     user's own edits); only missing ones are copied.
     """
+    import shutil
+
     root = demo_checkout()
     if root is None:
         raise TurnkitError("no turnkit checkout to copy the demo from")
@@ -510,6 +538,9 @@ def _run_forwarding_signals(command: list[str]) -> int:
 
     Returns its exit status (128 + the signal number when a signal ended it).
     """
+    import signal
+    import subprocess
+
     process = subprocess.Popen(command)
 
     def forward(signum, _frame) -> None:

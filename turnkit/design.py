@@ -303,8 +303,8 @@ class _Section:
 
     def __post_init__(self):
         name = type(self).__name__
-        for spec in self.FIELDS:
-            if spec.kind == "quantity" and len(spec.units) > 1:
+        for spec, several_units, stored in _stored_fields(type(self)):
+            if several_units:
                 set_attrs = [a for a in spec.attrs if getattr(self, a) is not None]
                 if len(set_attrs) > 1:
                     raise DesignValueError(
@@ -314,11 +314,11 @@ class _Section:
                     )
                 if spec.required and not set_attrs:
                     raise DesignValueError(f"{name}.{spec.key}", None, f"given ({spec.dimension_text()})")
-            for unit, attr in zip(spec.units or ("",), spec.attrs):
+            for unit, attr, where in stored:
                 value = getattr(self, attr)
-                if value is None and len(spec.units) > 1:
+                if value is None and several_units:
                     continue
-                spec.check(value, f"{name}.{attr}", unit)
+                spec.check(value, where, unit)
         self._check_together()
 
     def _check_together(self) -> None:
@@ -339,6 +339,25 @@ class _Section:
             if attr in spec.attrs:
                 return spec.key
         return attr
+
+
+_STORED_FIELDS: dict[type, tuple] = {}
+
+
+def _stored_fields(cls) -> tuple:
+    """``(spec, several units, ((unit, attribute, field path), ...))`` for each of ``cls.FIELDS``.
+
+    Worked out once per section class (a design is validated again at every change, and a
+    tolerance run changes it for every sample); again if ``FIELDS`` is replaced.
+    """
+    fields_, plan = _STORED_FIELDS.get(cls, (None, ()))
+    if fields_ is not cls.FIELDS:
+        name = cls.__name__
+        plan = tuple((spec, spec.kind == "quantity" and len(spec.units) > 1,
+                      tuple((unit, attr, f"{name}.{attr}") for unit, attr in zip(spec.units or ("",), spec.attrs)))
+                     for spec in cls.FIELDS)
+        _STORED_FIELDS[cls] = (cls.FIELDS, plan)
+    return plan
 
 
 def _fail(section: _Section, attr: str, value: Any, allowed: str, unit: str = "", hint: str = ""):

@@ -34,13 +34,11 @@ from __future__ import annotations
 
 import codecs
 import dataclasses
-import difflib
 import hashlib
 import math
 import os
 import re
 import stat
-import tempfile
 from functools import lru_cache
 from pathlib import Path
 from typing import Any
@@ -344,6 +342,8 @@ class _Reader:
 
     @staticmethod
     def suggest(word: Any, options: tuple[str, ...]) -> str:
+        import difflib  # here, not at import: only a misspelt key needs it
+
         close = difflib.get_close_matches(str(word), options, n=1, cutoff=0.6)
         if close:
             return f"; did you mean {close[0]!r}?"
@@ -819,6 +819,8 @@ def _new_file_mode() -> int:
 
 def _temporary(path: Path, data: bytes, mode: int, source: str) -> str:
     """A temporary file beside ``path`` holding ``data`` (flushed to disk); returns its name."""
+    import tempfile  # here, not at import: reading and sizing never write
+
     folder = path.parent if str(path.parent) else Path(".")
     try:
         fd, temp_name = tempfile.mkstemp(prefix=f"{_temporary_prefix(path)}{os.getpid()}.", suffix=".tmp",
@@ -1186,6 +1188,8 @@ class _Merger:
 
 def _align_stages(old: tuple, new: tuple) -> list:
     """Match gear stages: unchanged stages by value, changed ones in place when of the same kind."""
+    import difflib
+
     pairs: list = [None] * len(new)
     matcher = difflib.SequenceMatcher(None, list(old), list(new), autojunk=False)
     for tag, i1, i2, j1, j2 in matcher.get_opcodes():
@@ -1201,6 +1205,8 @@ def _align_stages(old: tuple, new: tuple) -> list:
 
 def _align_named(old: tuple, new: tuple) -> list:
     """Match consumers or scenarios by name; a renamed one keeps its place when it can be told."""
+    import difflib
+
     old_names = [item.name for item in old]
     pairs: list = [old_names.index(item.name) if item.name in old_names else None for item in new]
     matcher = difflib.SequenceMatcher(None, old_names, [item.name for item in new], autojunk=False)

@@ -36,7 +36,6 @@ Examples
 
 from __future__ import annotations
 
-import difflib
 import math
 import numbers
 from dataclasses import dataclass, field
@@ -356,11 +355,18 @@ def _eq_table() -> dict[str, Equation]:
 EQUATIONS: Mapping[str, Equation] = MappingProxyType(_eq_table())
 
 
+def _close_matches(word, options) -> list[str]:
+    """Up to three names in ``options`` close to ``word`` (difflib is imported only for a misspelt name)."""
+    import difflib
+
+    return difflib.get_close_matches(str(word), options, n=3)
+
+
 def _equation_by_key(key: str) -> Equation:
     try:
         return EQUATIONS[key]
     except KeyError:
-        close = difflib.get_close_matches(str(key), EQUATIONS, n=3)
+        close = _close_matches(key, EQUATIONS)
         hint = f"Did you mean {', '.join(close)}?" if close else ""
         raise DesignValueError("equation", key, f"one of {', '.join(EQUATIONS)}", hint=hint) from None
 
@@ -730,7 +736,7 @@ def _validate_knowns(knowns: dict) -> dict[str, float]:
     checked = {}
     for name, value in knowns.items():
         if name not in SYMBOLS:
-            close = difflib.get_close_matches(name, SYMBOLS, n=3)
+            close = _close_matches(name, SYMBOLS)
             extra = f"; did you mean {', '.join(close)}?" if close else ""
             raise TypeError(f"unknown symbol {name!r}{extra} Known symbols: {', '.join(SYMBOLS)}")
         checked[name] = _check_known(name, value)
@@ -784,7 +790,7 @@ def solve_for(unknown: str, *, equation: str | None = None, detail: bool = False
     0.01
     """
     if unknown not in SYMBOLS:
-        close = difflib.get_close_matches(str(unknown), SYMBOLS, n=3)
+        close = _close_matches(unknown, SYMBOLS)
         raise DesignValueError("unknown", unknown, f"one of {', '.join(SYMBOLS)}",
                                hint=f"Did you mean {', '.join(close)}?" if close else "")
     if unknown in knowns:

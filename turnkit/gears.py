@@ -898,11 +898,16 @@ class GearTrain:
     stages: tuple = field(default=())
     # The exact ratio, worked out once: sizing reads it many times and Fraction arithmetic is slow.
     _ratio: Fraction | None = field(default=None, init=False, repr=False, compare=False)
+    # Likewise the travel per motor turn and the backlash at the output (functions of the stages alone).
+    _travel: Fraction | float | None = field(default=None, init=False, repr=False, compare=False)
+    _backlash: float | None = field(default=None, init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
         stages = tuple(self.stages)
         object.__setattr__(self, "stages", stages)
         object.__setattr__(self, "_ratio", None)
+        object.__setattr__(self, "_travel", None)
+        object.__setattr__(self, "_backlash", None)
         if not stages:
             raise DesignValueError("gear_train", [], "at least one stage")
         for i, stage in enumerate(stages):
@@ -989,11 +994,16 @@ class GearTrain:
 
         Exact (a Fraction) except behind a rack, whose pitch contains pi.
         """
-        last = self.stages[-1]
-        if last.output_kind == "linear":
-            per = last.travel_per_input_turn_mm
-            return per / self.ratio if isinstance(per, Fraction) else per / float(self.ratio)
-        return Fraction(360) / self.ratio
+        travel = self._travel
+        if travel is None:
+            last = self.stages[-1]
+            if last.output_kind == "linear":
+                per = last.travel_per_input_turn_mm
+                travel = per / self.ratio if isinstance(per, Fraction) else per / float(self.ratio)
+            else:
+                travel = Fraction(360) / self.ratio
+            object.__setattr__(self, "_travel", travel)
+        return travel
 
     def motor_turns(self, travel):
         """Motor turns for an output travel (deg or mm, scalar or array).
@@ -1057,6 +1067,8 @@ class GearTrain:
         final screw or rack turns degrees into mm by its travel per turn and
         adds its own axial backlash.
         """
+        if self._backlash is not None:
+            return self._backlash
         rotary = self.rotary_stages
         total_deg = 0.0
         downstream = Fraction(1)
@@ -1064,9 +1076,11 @@ class GearTrain:
             total_deg += float(s.backlash_deg) / float(downstream)
             downstream *= s.reduction
         last = self.stages[-1]
+        total = total_deg
         if last.output_kind == "linear":
-            return total_deg / 360.0 * float(last.travel_per_input_turn_mm) + float(last.backlash_mm)
-        return total_deg
+            total = total_deg / 360.0 * float(last.travel_per_input_turn_mm) + float(last.backlash_mm)
+        object.__setattr__(self, "_backlash", total)
+        return total
 
     def backlash_per_stage(self) -> tuple[float, ...]:
         """Each stage's contribution to :meth:`backlash_at_output`, same order as ``stages``."""

@@ -50,6 +50,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass, replace
+from functools import lru_cache
 
 import numpy as np
 
@@ -353,6 +354,22 @@ def state_fractions(
     ``f_slow = 1 - tracking_fraction - f_fast``. Within a share polled every
     ``T``, ``waking`` takes ``(wake + settle) / T`` and the poll ``poll / T``.
     """
+    inputs = (poll_period_s, wake_time_s, settle_time_s, poll_time_s, fast_period_s, hold_s, motion_fraction,
+              motion_events_per_day, tracking_fraction)
+    if all(v is None or type(v) in (float, int) for v in inputs):
+        # Plain numbers (a sizing; sweeps and tolerance runs repeat the same schedule): worked out once.
+        fractions, wakes = _scalar_state_fractions(*inputs)
+        return fractions.copy(), wakes.copy()
+    return _state_fractions(*inputs)
+
+
+@lru_cache(maxsize=256)
+def _scalar_state_fractions(*inputs):
+    return _state_fractions(*inputs)
+
+
+def _state_fractions(poll_period_s, wake_time_s, settle_time_s, poll_time_s, fast_period_s, hold_s, motion_fraction,
+                     motion_events_per_day, tracking_fraction):
     T = _arr("poll_period_s", poll_period_s, "s", positive=True)
     tw = _arr("wake_time_s", wake_time_s, "s") + _arr("settle_time_s", settle_time_s, "s")
     tp = _arr("poll_time_s", poll_time_s, "s")

@@ -499,6 +499,10 @@ class _Kinematics:
     output_unit: str
 
 
+def _kinematics_of(train) -> _Kinematics:
+    return _Kinematics(train.travel_per_motor_turn, train.direction, train.output_unit)
+
+
 @lru_cache(maxsize=512)
 def _simulate_scenario(sc: MotionScenario, kinematics: _Kinematics, schedule, settings, base_dir: str | None,
                        edges: tuple | None = None):
@@ -839,8 +843,7 @@ def _mechanics(stages: tuple) -> Mechanics:
         out.cautions.append(_BACKDRIVE_CAUTION)
     elif any(isinstance(s, (gears.WormStage, gears.LeadScrew)) for s in train.stages):
         out.cautions.append(_CREEP_CAUTION)
-    return Mechanics(out.done(), stages, train, unit,
-                     _Kinematics(train.travel_per_motor_turn, train.direction, train.output_unit))
+    return Mechanics(out.done(), stages, train, unit, _kinematics_of(train))
 
 
 def counter_range_stage(design: ActuatorDesign, mech: Mechanics) -> CounterRange:
@@ -1519,7 +1522,9 @@ def _scenario_motion(sc: MotionScenario, stages: tuple, base_dir: str | None) ->
     if sc.kind == "bursts":
         count, mean_s = _burst_count(sc, train)
         return min(count * mean_s, sc.duration_s), count, count
-    profile, duration, _ = build_motion(sc, train, Path(base_dir) if base_dir is not None else None)
+    # Built from the train's kinematics, as the simulation builds it, so that a trace file read here
+    # is the one the simulation reuses (its cache is keyed on what the motion reads of the train).
+    profile, duration, _ = build_motion(sc, _kinematics_of(train), Path(base_dir) if base_dir is not None else None)
     starts, ends = profile.motion_intervals()
     if not np.size(starts):
         return 0.0, 0.0, 0.0
@@ -1615,11 +1620,18 @@ def _floor_digits(value: float, digits: int = 3) -> str:
 def _service_temperatures_degC(design: ActuatorDesign) -> np.ndarray:
     """Budget temperatures: the service range in up to 9 steps plus the calibration temperature inside it."""
     low, high = design.requirements.temperature_range_degC()
+    return _temperature_grid(low, high, design.accuracy.calibration_temperature_degC)
+
+
+@lru_cache(maxsize=64)
+def _temperature_grid(low: float, high: float, cal: float) -> np.ndarray:
+    # Cached on the three temperatures it reads (degC); read-only, since every caller shares it.
     grid = np.linspace(low, high, 9) if high > low else np.array([low])
-    cal = design.accuracy.calibration_temperature_degC
     if low <= cal <= high:
         grid = np.append(grid, cal)
-    return np.array(sorted(set(grid.tolist())))  # np.unique would import a numpy submodule on a cold start
+    grid = np.array(sorted(set(grid.tolist())))  # np.unique would import a numpy submodule on a cold start
+    grid.flags.writeable = False
+    return grid
 
 
 def _magnet_numbers(mag):
@@ -1634,32 +1646,62 @@ def _magnet_numbers(mag):
             grade)
 
 
-def _field_state(design: ActuatorDesign, temps: np.ndarray, airgap_mm: float, fine_error_deg: float) -> dict:
-    """Fields at the sensor and the latches over temperature, and whether each field check passes."""
-    from . import countkeeping, magnet as mag_mod
+def _field_state(design: ActuatorDesign, temps: np.ndarray, airgap_mm: float, fine_error_deg: float):
+    """Fields at the sensor and the latches over temperature, and whether each field check passes.
 
-    mag = design.magnet
+    A read-only mapping. The fields are cached on exactly what they read (:func:`_fields`), so a
+    tolerance run that draws backlash, latch tolerances, the sensor or battery figures works them out
+    once; only the re-sync check, which also reads the sensor error, is worked out each time.
+    """
+    from . import countkeeping
+
+    lat = design.latches
+    thresholds = (lat.operate_field_mT, lat.release_field_mT, lat.threshold_spread_mT, lat.threshold_drift_pct_per_K)
+    state = _fields(design.magnet, tuple(temps.tolist()), float(airgap_mm), design.sensor.minimum_field_mT,
+                    thresholds)
+    sw = state["switching"]
+    if sw is None or design.count_memory is None:
+        return state
+    # The re-sync check (count keeping) also reads the sensor error, which a tolerance run may draw.
+    rs = countkeeping.resync(sw.hysteresis_deg, min(sw.switch_spread_deg, 90.0), fine_error_deg)
+    return MappingProxyType({**state, "resync": rs, "all_ok": state["all_ok"] and rs.ok})
+
+
+def _latch_peak_field(mag, temps: np.ndarray, airgap_mm: float) -> np.ndarray:
+    """Peak field at a latch over temperature (mT)."""
+    from . import magnet as mag_mod
+
     br20, drift, _, _ = _magnet_numbers(mag)
     br = np.atleast_1d(mag_mod.remanence_mT(br20, drift, temps))
     latch_r = mag.latch_radius_mm if mag.latch_radius_mm is not None else 0.5 * mag.diameter_mm
+    return np.atleast_1d(mag_mod.latch_peak_field_mT(br, mag.diameter_mm, mag.thickness_mm, airgap_mm, latch_r))
+
+
+@lru_cache(maxsize=256)
+def _fields(mag, temps: tuple, airgap_mm: float, minimum_field_mT: float, thresholds: tuple) -> MappingProxyType:
+    """:func:`_field_state` without the re-sync check, from the [magnet] section, the temperatures (degC),
+    the airgap (mm), the sensor's minimum field (mT) and the latches' (operate mT, release mT, threshold
+    spread mT, threshold drift %/K)."""
+    from . import magnet as mag_mod
+
+    temps = np.array(temps)
+    br20, drift, _, _ = _magnet_numbers(mag)
+    br = np.atleast_1d(mag_mod.remanence_mT(br20, drift, temps))
     b_sensor = np.atleast_1d(mag_mod.sensor_field_mT(br, mag.diameter_mm, mag.thickness_mm, airgap_mm))
-    b_latch = np.atleast_1d(mag_mod.latch_peak_field_mT(br, mag.diameter_mm, mag.thickness_mm, airgap_mm, latch_r))
+    b_latch = _latch_peak_field(mag, temps, airgap_mm)
+    b_sensor.flags.writeable = False
+    b_latch.flags.writeable = False
     state = {"b_sensor": b_sensor, "b_latch": b_latch, "switching": None,
-             "sensor_ok": bool(np.min(b_sensor) >= design.sensor.minimum_field_mT)}
-    lat = design.latches
+             "sensor_ok": bool(np.min(b_sensor) >= minimum_field_mT)}
+    operate, release, spread, threshold_drift = thresholds
     passes = [state["sensor_ok"]]
-    if lat.operate_field_mT is not None:
-        sw = mag_mod.latch_switching(b_latch, temps, operate_field_mT=lat.operate_field_mT,
-                                     release_field_mT=lat.release_field_mT, threshold_spread_mT=lat.threshold_spread_mT,
-                                     threshold_drift_pct_per_K=lat.threshold_drift_pct_per_K)
+    if operate is not None:
+        sw = mag_mod.latch_switching(b_latch, temps, operate_field_mT=operate, release_field_mT=release,
+                                     threshold_spread_mT=spread, threshold_drift_pct_per_K=threshold_drift)
         state["switching"] = sw
         passes += [sw.operates, sw.releases]
-        if design.count_memory is not None:
-            rs = countkeeping.resync(sw.hysteresis_deg, min(sw.switch_spread_deg, 90.0), fine_error_deg)
-            state["resync"] = rs
-            passes.append(rs.ok)
     state["all_ok"] = all(passes)
-    return state
+    return MappingProxyType(state)
 
 
 def _largest_airgap_mm(design: ActuatorDesign, temps: np.ndarray, fine_error_deg: float) -> float | None:
@@ -1694,11 +1736,19 @@ def _accuracy_stage(design: ActuatorDesign, curves: bool = True) -> _BudgetStage
 
     Cached on the sections it reads: a poll-period or battery change on the dashboard reuses it.
     """
+    counter, schedule, power_ = _unread_sections()
+    key = replace(design, name="-", description="", counter=counter, schedule=schedule, power=power_, battery=None,
+                  motion=())
+    return _accuracy_stage_cached(key, bool(curves))
+
+
+@lru_cache(maxsize=1)
+def _unread_sections():
+    """Default [counter], [schedule] and [power] sections, which stand in for the design's in the accuracy
+    stage's cache key (made once: each is validated when made)."""
     from .design import CounterDesign, PowerDesign, ScheduleDesign
 
-    key = replace(design, name="-", description="", counter=CounterDesign(), schedule=ScheduleDesign(),
-                  power=PowerDesign(), battery=None, motion=())
-    return _accuracy_stage_cached(key, bool(curves))
+    return CounterDesign(), ScheduleDesign(), PowerDesign()
 
 
 @lru_cache(maxsize=64)
@@ -1786,7 +1836,7 @@ def _accuracy_stage_cached(design: ActuatorDesign, curves: bool) -> _BudgetStage
 
     def part(key, label, motor_deg=None, out=None, shape="sine", note=""):
         size = np.asarray(out if out is not None else np.asarray(motor_deg, dtype=float) * per_motor_deg, dtype=float)
-        if np.any(size > 0):
+        if (size > 0).any():
             parts.append(acc_mod.Contribution(key, label, size, shape, note))
 
     part("sensor_residual", "sensor error" + (" after calibration" if design.sensor.calibrated else
@@ -1948,7 +1998,6 @@ def _accuracy_stage_cached(design: ActuatorDesign, curves: bool) -> _BudgetStage
     return _BudgetStage((tuple(values), tuple(checks), tuple(curve_list), tuple(warns), tuple(assumptions)))
 
 
-@lru_cache(maxsize=64)
 def latch_switch_spread_from_field(design: ActuatorDesign) -> tuple[float, float] | None:
     """Field-derived latch switch-point tolerance and hysteresis of a design (deg, deg), or None.
 
@@ -1959,14 +2008,23 @@ def latch_switch_spread_from_field(design: ActuatorDesign) -> tuple[float, float
     """
     if design.magnet is None or design.latches.operate_field_mT is None:
         return None
+    lat = design.latches
+    return _switch_spread(design.magnet, tuple(_service_temperatures_degC(design).tolist()), lat.operate_field_mT,
+                          lat.release_field_mT, lat.threshold_spread_mT, lat.threshold_drift_pct_per_K)
+
+
+@lru_cache(maxsize=64)
+def _switch_spread(mag, temps: tuple, operate_field_mT: float, release_field_mT: float, threshold_spread_mT: float,
+                   threshold_drift_pct_per_K: float) -> tuple[float, float]:
+    # Cached on exactly what it reads (the counting limits ask for it several times a sizing, and a
+    # tolerance run that draws the latches' stated tolerance or the backlash reuses it).
     from .magnet import latch_switch_spread_deg
 
-    temps = _service_temperatures_degC(design)
-    b_latch = _field_state(design, temps, design.magnet.airgap_mm, 0.0)["b_latch"]
-    lat = design.latches
-    return latch_switch_spread_deg(b_latch, temps, operate_field_mT=lat.operate_field_mT,
-                                   release_field_mT=lat.release_field_mT, threshold_spread_mT=lat.threshold_spread_mT,
-                                   threshold_drift_pct_per_K=lat.threshold_drift_pct_per_K)
+    temps = np.array(temps)
+    return latch_switch_spread_deg(_latch_peak_field(mag, temps, mag.airgap_mm), temps,
+                                   operate_field_mT=operate_field_mT, release_field_mT=release_field_mT,
+                                   threshold_spread_mT=threshold_spread_mT,
+                                   threshold_drift_pct_per_K=threshold_drift_pct_per_K)
 
 
 # ---------------------------------------------------------------------------
@@ -2252,7 +2310,7 @@ def _scenario_peak_to_peak(sc: MotionScenario, train) -> float | None:
 @lru_cache(maxsize=256)
 def _scenario_peak(sc: MotionScenario, stages: tuple, base_dir: str | None) -> float:
     train = _train_cached(stages)[0]
-    return float(build_motion(sc, train, Path(base_dir) if base_dir else None)[2])
+    return float(build_motion(sc, _kinematics_of(train), Path(base_dir) if base_dir else None)[2])
 
 
 def _scenario_peaks(design: ActuatorDesign, stages: tuple, base_dir: str | None) -> tuple:
