@@ -1183,7 +1183,8 @@ class _Run:
         m = int(done[-1])
         # The reads that can change the count error or the guessed direction: the slow
         # reads and each burst's last fast read that saw a step (every other fast read
-        # steps by at most one and is decoded right).
+        # steps by at most one and is decoded right). Under flag-and-hold the batch holds
+        # no ambiguous read (checked above), so _sparse decodes it as the one-burst path does.
         n_s = int(s_at[m] + n_slow[m])
         r = rep[:m + 1]
         r = r[r >= 0]
