@@ -1667,12 +1667,18 @@ def _field_state(design: ActuatorDesign, temps: np.ndarray, airgap_mm: float, fi
     return MappingProxyType({**state, "resync": rs, "all_ok": state["all_ok"] and rs.ok})
 
 
-def _latch_peak_field(mag, temps: np.ndarray, airgap_mm: float) -> np.ndarray:
-    """Peak field at a latch over temperature (mT)."""
+def _remanence(mag, temps: np.ndarray) -> np.ndarray:
+    """Remanence of the magnet over temperature (mT)."""
     from . import magnet as mag_mod
 
     br20, drift, _, _ = _magnet_numbers(mag)
-    br = np.atleast_1d(mag_mod.remanence_mT(br20, drift, temps))
+    return np.atleast_1d(mag_mod.remanence_mT(br20, drift, temps))
+
+
+def _latch_peak_field(mag, br: np.ndarray, airgap_mm: float) -> np.ndarray:
+    """Peak field at a latch (mT) for the remanence ``br`` (mT)."""
+    from . import magnet as mag_mod
+
     latch_r = mag.latch_radius_mm if mag.latch_radius_mm is not None else 0.5 * mag.diameter_mm
     return np.atleast_1d(mag_mod.latch_peak_field_mT(br, mag.diameter_mm, mag.thickness_mm, airgap_mm, latch_r))
 
@@ -1685,10 +1691,9 @@ def _fields(mag, temps: tuple, airgap_mm: float, minimum_field_mT: float, thresh
     from . import magnet as mag_mod
 
     temps = np.array(temps)
-    br20, drift, _, _ = _magnet_numbers(mag)
-    br = np.atleast_1d(mag_mod.remanence_mT(br20, drift, temps))
+    br = _remanence(mag, temps)
     b_sensor = np.atleast_1d(mag_mod.sensor_field_mT(br, mag.diameter_mm, mag.thickness_mm, airgap_mm))
-    b_latch = _latch_peak_field(mag, temps, airgap_mm)
+    b_latch = _latch_peak_field(mag, br, airgap_mm)
     b_sensor.flags.writeable = False
     b_latch.flags.writeable = False
     state = {"b_sensor": b_sensor, "b_latch": b_latch, "switching": None,
@@ -2021,7 +2026,7 @@ def _switch_spread(mag, temps: tuple, operate_field_mT: float, release_field_mT:
     from .magnet import latch_switch_spread_deg
 
     temps = np.array(temps)
-    return latch_switch_spread_deg(_latch_peak_field(mag, temps, mag.airgap_mm), temps,
+    return latch_switch_spread_deg(_latch_peak_field(mag, _remanence(mag, temps), mag.airgap_mm), temps,
                                    operate_field_mT=operate_field_mT, release_field_mT=release_field_mT,
                                    threshold_spread_mT=threshold_spread_mT,
                                    threshold_drift_pct_per_K=threshold_drift_pct_per_K)
